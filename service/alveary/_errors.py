@@ -1,0 +1,121 @@
+"""The one exception hierarchy of alveary.
+
+Every error the package raises derives from :class:`AlvearyError` and mixes in the
+built-in exception a caller would expect, so ``except ValueError`` keeps working::
+
+    AlvearyError
+    ├── InvalidInput (ValueError)          bad argument: names parameter, value, allowed range
+    │   ├── GridError                      a grid function was given a bad value
+    │   ├── CubeFormatError                a store holds something that is not a valid cube
+    │   └── IngestError                    a source cannot be turned into a cube
+    ├── NotFound (LookupError)             unknown cube, variable or zone
+    ├── LimitExceeded (ValueError)         a request over a configured limit
+    ├── StoreUnavailable (OSError)         the object store cannot be reached
+    ├── ChunkDecodeError (OSError)         a stored chunk cannot be decoded
+    └── DeadlineExceeded (TimeoutError)    a request ran past its deadline
+
+The HTTP layer maps this hierarchy to status codes in exactly one table.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+__all__ = [
+    "AlvearyError",
+    "ChunkDecodeError",
+    "CubeFormatError",
+    "DeadlineExceeded",
+    "GridError",
+    "IngestError",
+    "InvalidInput",
+    "LimitExceeded",
+    "NotFound",
+    "StoreUnavailable",
+]
+
+
+class AlvearyError(Exception):
+    """Base of every error alveary raises."""
+
+
+class InvalidInput(AlvearyError, ValueError):
+    """An argument is outside what is allowed.
+
+    Parameters
+    ----------
+    parameter:
+        The name of the offending parameter, as the caller spelled it.
+    value:
+        The offending value (one element if the argument was an array).
+    allowed:
+        A human-readable statement of the allowed range, e.g. ``"[-90, 90]"``.
+    index:
+        The position of the offending element when the argument was an array.
+    """
+
+    def __init__(
+        self,
+        parameter: str,
+        value: Any = None,
+        allowed: str | None = None,
+        *,
+        index: int | tuple[int, ...] | None = None,
+        message: str | None = None,
+    ) -> None:
+        self.parameter = parameter
+        self.value = value
+        self.allowed = allowed
+        self.index = index
+        if message is None:
+            where = "" if index is None else f" at position {index}"
+            message = f"{parameter}{where} is {value!r}"
+            if allowed:
+                message += f"; allowed: {allowed}"
+        self.message = message
+        super().__init__(message)
+
+
+class GridError(InvalidInput):
+    """A grid function was given a value outside its domain."""
+
+
+class CubeFormatError(InvalidInput):
+    """A store does not hold a valid cube of this format version."""
+
+
+class IngestError(InvalidInput):
+    """A source cannot be ingested (unreadable, unknown CRS, mismatched grids, ...)."""
+
+
+class NotFound(AlvearyError, LookupError):
+    """An unknown cube, variable or zone."""
+
+    def __init__(self, kind: str, name: Any, message: str | None = None) -> None:
+        self.kind = kind
+        self.name = name
+        self.message = message or f"unknown {kind}: {name!r}"
+        super().__init__(self.message)
+
+
+class LimitExceeded(AlvearyError, ValueError):
+    """A request would exceed a configured limit."""
+
+    def __init__(self, limit: str, requested: int | float, maximum: int | float) -> None:
+        self.limit = limit
+        self.requested = requested
+        self.maximum = maximum
+        self.message = f"{limit}: requested {requested}, the limit is {maximum}"
+        super().__init__(self.message)
+
+
+class StoreUnavailable(AlvearyError, OSError):
+    """The object store behind a cube cannot be reached."""
+
+
+class ChunkDecodeError(AlvearyError, OSError):
+    """A stored chunk exists but cannot be decoded."""
+
+
+class DeadlineExceeded(AlvearyError, TimeoutError):
+    """A request ran past its deadline."""

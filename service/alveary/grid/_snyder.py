@@ -1,0 +1,141 @@
+"""Snyder's equal-area projection of the icosahedron's faces onto planar triangles.
+
+J. P. Snyder (1992), "An Equal-Area Map Projection for Polyhedral Globes",
+Cartographica 29(1):10-21; equation numbers in brackets. Each face is projected into its
+own plane, seen from outside the globe: vertex k of face f lands at
+``C (cos 120°k, sin 120°k)`` with ``C = R_AUTHALIC * R' * tan(g)``.
+
+The forward map has a closed form; the inverse needs Newton's method for the azimuth.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from alveary.grid._authalic import R_AUTHALIC
+from alveary.grid._icosahedron import FACE_CENTERS, FACE_E1, FACE_E2, FACES, VERTICES
+
+__all__ = [
+    "CIRCUMRADIUS",
+    "EDGE",
+    "FACES",
+    "RPRIME",
+    "R_AUTHALIC",
+    "VERTICES",
+    "face_of",
+    "forward",
+    "inverse",
+    "lonlat_to_xyz",
+    "project",
+    "unproject",
+    "xyz_to_lonlat",
+]
+
+_G = np.radians(36.0)  # G: half the angle of a spherical face at its vertex (360°/10)
+_THETA = np.radians(30.0)  # theta: half the angle of the planar triangle at its vertex
+_COT_THETA = 1.0 / np.tan(_THETA)
+#: g: arc from a face centre to its vertices.
+G_ARC = float(np.arccos(np.dot(FACE_CENTERS[0], VERTICES[FACES[0, 0]])))
+_TAN_G = np.tan(G_ARC)
+#: R'/R, chosen so the planar triangle has the spherical face's area (Snyder [5]).
+RPRIME = float(np.sqrt(4.0 * np.pi / 20.0 / (3.0 * np.sqrt(3.0) / 4.0)) / _TAN_G)
+#: Distance from a face centre to its vertices in the plane, in units of the sphere radius.
+CIRCUMRADIUS = RPRIME * _TAN_G
+#: Edge of a planar face in units of the sphere radius.
+EDGE = CIRCUMRADIUS * np.sqrt(3.0)
+_K = (RPRIME * _TAN_G) ** 2
+_SECTOR = 2.0 * np.pi / 3.0
+
+
+def lonlat_to_xyz(lat: np.ndarray, lon: np.ndarray) -> np.ndarray:
+    """Unit vectors (..., 3) of spherical latitude/longitude in degrees."""
+    la, lo = np.radians(lat), np.radians(lon)
+    c = np.cos(la)
+    return np.stack([c * np.cos(lo), c * np.sin(lo), np.sin(la)], axis=-1)
+
+
+def xyz_to_lonlat(xyz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Spherical (lat, lon) in degrees of vectors (..., 3); longitude in [-180, 180]."""
+    x, y, z = xyz[..., 0], xyz[..., 1], xyz[..., 2]
+    lat = np.degrees(np.arctan2(z, np.hypot(x, y)))
+    lon = np.degrees(np.arctan2(y, x))
+    return lat, lon
+
+
+def face_of(xyz: np.ndarray) -> np.ndarray:
+    """The face whose centre is nearest: the face that holds the point."""
+    return np.argmax(xyz @ FACE_CENTERS.T, axis=-1)
+
+
+def _reduce(az: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Split an azimuth in [0, 2π) into a 120° sector number and the rest."""
+    sector = np.clip(np.floor(az / _SECTOR), 0, 2)
+    return sector, az - sector * _SECTOR
+
+
+def forward(xyz: np.ndarray, face: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Project unit vectors onto the planes of the given faces (units of the radius)."""
+    c, e1, e2 = FACE_CENTERS[face], FACE_E1[face], FACE_E2[face]
+    px = np.einsum("...i,...i->...", xyz, e1)
+    py = np.einsum("...i,...i->...", xyz, e2)
+    pz = np.einsum("...i,...i->...", xyz, c)
+    z = np.arctan2(np.hypot(px, py), pz)  # arc from the face centre
+    sector, az = _reduce(np.mod(np.arctan2(py, px), 2.0 * np.pi))
+    cos_az, sin_az = np.cos(az), np.sin(az)
+    q = np.arctan2(_TAN_G, cos_az + sin_az * _COT_THETA)  # [9]
+    h = np.arccos(
+        np.clip(sin_az * np.sin(_G) * np.cos(G_ARC) - cos_az * np.cos(_G), -1.0, 1.0)
+    )  # [6]
+    area = az + _G + h - np.pi  # [7], on the unit sphere
+    az_p = np.arctan2(2.0 * area, _K - 2.0 * area * _COT_THETA)  # [8]
+    d_p = RPRIME * _TAN_G / (np.cos(az_p) + np.sin(az_p) * _COT_THETA)  # [10]
+    f = d_p / (2.0 * RPRIME * np.sin(q / 2.0))  # [11]
+    rho = 2.0 * RPRIME * f * np.sin(z / 2.0)  # [12]
+    az_p = az_p + sector * _SECTOR
+    return rho * np.cos(az_p), rho * np.sin(az_p)
+
+
+def inverse(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """Unit vectors of plane points (units of the radius) on the given faces."""
+    rho = np.hypot(x, y)
+    sector, az_p = _reduce(np.mod(np.arctan2(y, x), 2.0 * np.pi))
+    cos_ap, sin_ap = np.cos(az_p), np.sin(az_p)
+    denom = cos_ap + sin_ap * _COT_THETA
+    area = _K * sin_ap / (2.0 * denom)  # [8] solved for the area
+    sg, cg, cG = np.sin(_G), np.cos(G_ARC), np.cos(_G)
+    az = az_p.copy()
+    for _ in range(8):  # Newton on Az + G + H(Az) - pi = area [6, 7]
+        ca, sa = np.cos(az), np.sin(az)
+        w = np.clip(sa * sg * cg - ca * cG, -1.0, 1.0)
+        h = np.arccos(w)
+        dh = -(ca * sg * cg + sa * cG) / np.sqrt(np.maximum(1.0 - w * w, 1e-300))
+        az = np.clip(az - (az + _G + h - np.pi - area) / (1.0 + dh), 0.0, _SECTOR)
+    q = np.arctan2(_TAN_G, np.cos(az) + np.sin(az) * _COT_THETA)  # [9]
+    d_p = RPRIME * _TAN_G / denom  # [10]
+    f = d_p / (2.0 * RPRIME * np.sin(q / 2.0))  # [11]
+    z = 2.0 * np.arcsin(np.clip(rho / (2.0 * RPRIME * f), 0.0, 1.0))  # [12]
+    az = az + sector * _SECTOR
+    c, e1, e2 = FACE_CENTERS[face], FACE_E1[face], FACE_E2[face]
+    heading = np.cos(az)[..., None] * e1 + np.sin(az)[..., None] * e2
+    return np.cos(z)[..., None] * c + np.sin(z)[..., None] * heading
+
+
+def project(lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Face and plane position in metres of authalic (lat, lon) in degrees.
+
+    >>> face, x, y = project(90.0, 0.0)
+    >>> int(face), round(float(np.hypot(x, y)))  # the pole is on an edge midpoint
+    (1, 3637500)
+    """
+    xyz = lonlat_to_xyz(np.asarray(lat, dtype=np.float64), np.asarray(lon, dtype=np.float64))
+    face = face_of(xyz)
+    x, y = forward(xyz, face)
+    return face, x * R_AUTHALIC, y * R_AUTHALIC
+
+
+def unproject(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Authalic (lat, lon) in degrees of plane positions in metres on the given faces."""
+    face = np.asarray(face, dtype=np.int64)
+    x = np.asarray(x, dtype=np.float64) / R_AUTHALIC
+    y = np.asarray(y, dtype=np.float64) / R_AUTHALIC
+    return xyz_to_lonlat(inverse(face, x, y))

@@ -1,0 +1,1 @@
+"""Shared test support: sample zones, hypothesis strategies, server fixtures."""
