@@ -1,0 +1,134 @@
+"""The application factory."""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import AsyncIterator, Callable
+from typing import Any
+
+from fastapi import FastAPI
+from fastapi.middleware.cors import CORSMiddleware
+
+from alveary.api._metrics import MetricsMiddleware
+from alveary.api._openapi import DESCRIPTION, install_openapi
+from alveary.api._problem import install_handlers, problem_response
+from alveary.api._routes_cubes import router as cubes_router
+from alveary.api._routes_meta import router as meta_router
+from alveary.api._routes_zones import router as zones_router
+from alveary.api._service import Service
+from alveary.api._settings import Settings
+from alveary.query import Catalog
+
+__all__ = ["create_app", "create_app_from_env"]
+
+
+class _BodyTooLarge(Exception):
+    pass
+
+
+class BodyLimitMiddleware:
+    """Refuse request bodies over ``max_bytes`` with 413 problem+json, before parsing."""
+
+    def __init__(self, app: Any, max_bytes: int) -> None:
+        self.app = app
+        self.max_bytes = max_bytes
+
+    async def __call__(self, scope: dict, receive: Callable, send: Callable) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        for name, value in scope.get("headers", ()):
+            if name == b"content-length":
+                try:
+                    size = int(value)
+                except ValueError:
+                    size = 0
+                if size > self.max_bytes:
+                    await self._refuse(scope, receive, send, size)
+                    return
+        seen = 0
+        started = False
+
+        async def limited() -> dict:
+            nonlocal seen
+            message = await receive()
+            if message["type"] == "http.request":
+                seen += len(message.get("body", b""))
+                if seen > self.max_bytes:
+                    raise _BodyTooLarge
+            return message
+
+        async def tracking_send(message: dict) -> None:
+            nonlocal started
+            if message["type"] == "http.response.start":
+                started = True
+            await send(message)
+
+        try:
+            await self.app(scope, limited, tracking_send)
+        except _BodyTooLarge:
+            if not started:
+                await self._refuse(scope, receive, send, seen)
+
+    async def _refuse(self, scope: dict, receive: Callable, send: Callable, size: int) -> None:
+        response = problem_response(
+            413,
+            "Request over a configured limit",
+            f"request body: requested {size} bytes, the limit is {self.max_bytes}",
+            limit="request body bytes",
+            requested=size,
+            maximum=self.max_bytes,
+        )
+        await response(scope, receive, send)
+
+
+def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
+    """Build the FastAPI application.
+
+    Parameters
+    ----------
+    settings:
+        Validated settings.
+    catalog:
+        The cubes to serve; by default built from ``settings`` (TOML list or store dir).
+    """
+    service = Service(settings, catalog)
+
+    @contextlib.asynccontextmanager
+    async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        await service.start()
+        try:
+            yield
+        finally:
+            await service.stop()
+
+    app = FastAPI(
+        title="alveary",
+        description=DESCRIPTION,
+        lifespan=lifespan,
+        docs_url="/docs",
+        redoc_url=None,
+    )
+    app.state.service = service
+    install_handlers(app, settings.retry_after)
+    app.include_router(meta_router)
+    app.include_router(cubes_router)
+    app.include_router(zones_router)
+    install_openapi(app)
+    if settings.cors_origins:
+        app.add_middleware(
+            CORSMiddleware,
+            allow_origins=settings.cors_origins,
+            allow_methods=["GET", "POST"],
+            allow_headers=["*"],
+            expose_headers=["ETag", "Retry-After"],
+            max_age=600,
+        )
+    app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(MetricsMiddleware, metrics=service.metrics)
+    return app
+
+
+def create_app_from_env() -> FastAPI:
+    """Factory for ``uvicorn --factory``: settings from ALVEARY_* variables."""
+    return create_app(Settings())

@@ -1,0 +1,164 @@
+"""The OpenAPI document: problem+json responses on every operation, and the examples.
+
+Examples live as files under ``openapi_examples/<operation_id>/<name>.json`` at the top of
+the repository (or wherever ``ALVEARY_EXAMPLES`` points). Each file holds one request and
+the response the service gives to it::
+
+    {"summary": "...",
+     "request": {"method": "GET", "path": "/cubes/demo/point",
+                 "query": {"lat": 45.2, "lon": 7.6}, "body": null},
+     "response": {"status": 200, "content_type": "application/json", "body": {...}}}
+
+They are loaded into the schema (parameter, request-body and response examples), and a
+test replays every one against a running service.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+from typing import Any
+
+from fastapi import FastAPI
+from fastapi.openapi.utils import get_openapi
+
+from alveary import __version__
+from alveary.api._schemas import PointsBody, Problem
+
+__all__ = ["examples_dir", "install_openapi", "load_examples"]
+
+_PROBLEMS = {
+    "404": "Unknown cube or zone.",
+    "413": "Over a configured limit (zones, k, vertices, points, time steps × zones, body).",
+    "422": "Invalid parameter: the detail names it and the allowed range.",
+    "502": "A stored chunk cannot be decoded.",
+    "503": "The store cannot be reached (Retry-After says when to try again).",
+    "504": "The request ran past its deadline.",
+}
+_GRID_PROBLEMS = ("404", "422")
+_META_OPS = {"landing", "health", "ready", "metrics"}
+
+DESCRIPTION = """\
+Spatial and time queries over hexagonal, equal-area data cubes.
+
+Zones are the cells of an equal-area hexagonal grid (twelve pentagons per level). A zone id
+is an integer that fits in 53 bits (exact in JavaScript); every answer also carries its
+readable text form, and `/zones/{zone}` accepts either.
+
+* `datetime` follows OGC API: an RFC 3339 instant selects the time step in force at that
+  instant (the latest at or before it); `start/end` selects every step in between, ends
+  included, `..` for an open end. Without it, the latest step.
+* Formats by `Accept` or `f`: JSON (default), GeoJSON, Arrow IPC stream, CSV; the same
+  numbers in each. Missing data is `null` (JSON), null (Arrow) or an empty field (CSV).
+* Every answer has an ETag (cube version + normalised query) and Cache-Control;
+  `If-None-Match` gets 304.
+* Errors are `application/problem+json` (RFC 9457).
+
+Values are only as good as the data the cubes were built from; for decisions such as
+irrigation or flood response, local authorities and licensed practice decide.
+"""
+
+
+def examples_dir() -> Path:
+    """Where the example files are: ``$ALVEARY_EXAMPLES`` or ``openapi_examples/``."""
+    env = os.environ.get("ALVEARY_EXAMPLES")
+    if env:
+        return Path(env)
+    here = Path(__file__).resolve()
+    for parent in here.parents:
+        candidate = parent / "openapi_examples"
+        if candidate.is_dir():
+            return candidate
+    return Path("openapi_examples")
+
+
+def load_examples(root: Path | None = None) -> dict[str, dict[str, dict[str, Any]]]:
+    """operation id -> example name -> example, from the example files."""
+    root = examples_dir() if root is None else Path(root)
+    out: dict[str, dict[str, dict[str, Any]]] = {}
+    if not root.is_dir():
+        return out
+    for path in sorted(root.glob("*/*.json")):
+        out.setdefault(path.parent.name, {})[path.stem] = json.loads(path.read_text())
+    return out
+
+
+def _add_examples(op: dict[str, Any], examples: dict[str, dict[str, Any]]) -> None:
+    for name, ex in examples.items():
+        request, response = ex.get("request", {}), ex.get("response", {})
+        summary = ex.get("summary", name)
+        query = request.get("query") or {}
+        for param in op.get("parameters", []):
+            if param.get("in") == "query" and param["name"] in query:
+                param.setdefault("examples", {})[name] = {
+                    "summary": summary,
+                    "value": query[param["name"]],
+                }
+            if param.get("in") == "path":
+                value = _path_value(op, request.get("path", ""), param["name"])
+                if value is not None:
+                    param.setdefault("examples", {})[name] = {"summary": summary, "value": value}
+        if request.get("body") is not None and "requestBody" in op:
+            content = op["requestBody"].setdefault("content", {}).setdefault("application/json", {})
+            content.setdefault("examples", {})[name] = {
+                "summary": summary,
+                "value": request["body"],
+            }
+        status = str(response.get("status", 200))
+        media = response.get("content_type", "application/json").split(";")[0]
+        if "body" in response:
+            resp = op.setdefault("responses", {}).setdefault(status, {"description": summary})
+            entry = resp.setdefault("content", {}).setdefault(media, {})
+            entry.setdefault("examples", {})[name] = {"summary": summary, "value": response["body"]}
+
+
+def _path_value(op: dict[str, Any], path: str, name: str) -> str | None:
+    template = op.get("x-path", "")
+    parts, values = template.strip("/").split("/"), path.strip("/").split("/")
+    if len(parts) != len(values):
+        return None
+    for p, v in zip(parts, values, strict=True):
+        if p == "{" + name + "}":
+            return v
+    return None
+
+
+def install_openapi(app: FastAPI) -> None:
+    """Replace ``app.openapi`` by a generator that adds problems and examples."""
+
+    def build() -> dict[str, Any]:
+        if app.openapi_schema:
+            return app.openapi_schema
+        schema = get_openapi(
+            title="alveary",
+            version=__version__,
+            description=DESCRIPTION,
+            routes=app.routes,
+        )
+        components = schema.setdefault("components", {}).setdefault("schemas", {})
+        for model in (Problem, PointsBody):
+            components[model.__name__] = model.model_json_schema(
+                ref_template="#/components/schemas/{model}"
+            )
+        examples = load_examples()
+        problem_ref = {"$ref": "#/components/schemas/Problem"}
+        for path, item in schema.get("paths", {}).items():
+            for op in item.values():
+                op_id = op.get("operationId", "")
+                responses = op.setdefault("responses", {})
+                responses.pop("422", None)  # FastAPI's own validation schema: replaced below
+                if op_id not in _META_OPS:
+                    codes = _GRID_PROBLEMS if path.startswith("/zones") else tuple(_PROBLEMS)
+                    for code in codes:
+                        responses[code] = {
+                            "description": _PROBLEMS[code],
+                            "content": {"application/problem+json": {"schema": problem_ref}},
+                        }
+                op["x-path"] = path
+                _add_examples(op, examples.get(op_id, {}))
+                del op["x-path"]
+        app.openapi_schema = schema
+        return schema
+
+    app.openapi = build  # type: ignore[method-assign]

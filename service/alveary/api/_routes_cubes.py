@@ -1,0 +1,356 @@
+"""Cube routes: the catalogue and every spatial query. Each route only builds a query
+object from its parameters and hands it to :meth:`Service.answer`."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import orjson
+from fastapi import APIRouter, Request
+from starlette.responses import Response
+
+from alveary._errors import InvalidInput, LimitExceeded
+from alveary.api._schemas import (
+    CubeList,
+    CubeMeta,
+    StatsAnswer,
+    ZonesAnswer,
+    geometry_body_schema,
+)
+from alveary.api.deps import (
+    BboxParam,
+    CubeId,
+    FormatDep,
+    IfNoneMatch,
+    KParam,
+    LatParam,
+    LonParam,
+    MetersParam,
+    NearestParam,
+    OptLatParam,
+    OptLonParam,
+    SelectionDep,
+    ServiceDep,
+    StatsDep,
+    ZoneParam,
+)
+from alveary.query import (
+    BboxQuery,
+    DiskQuery,
+    PointQuery,
+    PointsQuery,
+    PolygonQuery,
+    RadiusQuery,
+    format_time,
+    parse_bbox,
+    parse_polygon,
+)
+from alveary.query._models import parse_zone
+
+__all__ = ["router"]
+
+router = APIRouter(tags=["cubes"])
+
+_OTHER_FORMATS: dict[int | str, dict[str, Any]] = {
+    200: {
+        "description": "The answer. JSON by default; GeoJSON, Arrow IPC stream or CSV by "
+        "Accept or f.",
+        "content": {
+            "application/geo+json": {"schema": {"type": "object"}},
+            "application/vnd.apache.arrow.stream": {
+                "schema": {"type": "string", "format": "binary"}
+            },
+            "text/csv": {"schema": {"type": "string"}},
+        },
+    },
+    304: {"description": "Not modified (If-None-Match matched the ETag)."},
+}
+
+
+def _json(body: Any, status: int = 200) -> Response:
+    return Response(orjson.dumps(body), status_code=status, media_type="application/json")
+
+
+def _cube_meta(request: Request, cube_id: str, title: str | None, cube: Any, full: bool) -> dict:
+    links = [
+        {"href": f"/cubes/{cube_id}", "rel": "self" if full else "item", "type": "application/json"}
+    ]
+    if cube is None:
+        return {
+            "id": cube_id,
+            "title": title or cube_id,
+            "available": False,
+            "version": None,
+            "levels": [],
+            "variables": {},
+            "time": None,
+            "coverage": None,
+            "links": links,
+        }
+    times = np.asarray(cube.times)
+    text = format_time(times)
+    axis: dict[str, Any] = {
+        "start": text[0] if text else None,
+        "end": text[-1] if text else None,
+        "steps": len(text),
+    }
+    if full:
+        axis["values"] = text
+    variables = {}
+    for name, meta in cube.variables.items():
+        get = meta.get if isinstance(meta, dict) else (lambda k, m=meta: getattr(m, k, ""))
+        variables[name] = {
+            "units": str(get("units") or ""),
+            "long_name": str(get("long_name") or ""),
+        }
+    coverage = getattr(cube, "coverage", None)
+    return {
+        "id": cube_id,
+        "title": title or str(getattr(cube, "title", "") or cube_id),
+        "available": True,
+        "version": str(cube.version),
+        "levels": [int(v) for v in cube.levels],
+        "variables": variables,
+        "time": axis,
+        "coverage": [float(v) for v in coverage] if coverage is not None else None,
+        "links": links,
+    }
+
+
+@router.get(
+    "/cubes",
+    operation_id="list_cubes",
+    summary="List the cubes this server publishes",
+    response_model=CubeList,
+)
+async def list_cubes(request: Request, service: ServiceDep) -> Response:
+    out = [
+        _cube_meta(request, s.id, s.title, cube, full=False) for s, cube in service.catalog.cubes()
+    ]
+    return _json({"cubes": out})
+
+
+@router.get(
+    "/cubes/{cube}",
+    operation_id="get_cube",
+    summary="One cube: variables, units, levels, time axis, coverage and version",
+    response_model=CubeMeta,
+)
+async def get_cube(request: Request, service: ServiceDep, cube: CubeId) -> Response:
+    source = service.catalog.source(cube)
+    obj = service.catalog.get(cube)
+    return _json(_cube_meta(request, cube, source.title, obj, full=True))
+
+
+@router.get(
+    "/cubes/{cube}/point",
+    operation_id="query_point",
+    summary="Values at the zone under a point",
+    description=(
+        "The zone under (lat, lon) at a level (default: the cube's finest), its id and "
+        "centre, and the values of the selected variables at an instant or over an interval."
+    ),
+    response_model=ZonesAnswer,
+    responses=_OTHER_FORMATS,
+)
+async def query_point(
+    service: ServiceDep,
+    cube: CubeId,
+    lat: LatParam,
+    lon: LonParam,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    return await service.answer(cube, PointQuery(lat, lon, sel), fmt, if_none_match)
+
+
+@router.get(
+    "/cubes/{cube}/disk",
+    operation_id="query_disk",
+    summary="Values of every zone within k steps of a zone",
+    description=(
+        "The centre is the zone under (lat, lon) or a given zone id; each answered zone "
+        "carries its step distance from the centre (0 for the centre itself). Zones are "
+        "ordered by steps, then id."
+    ),
+    response_model=ZonesAnswer,
+    responses=_OTHER_FORMATS,
+)
+async def query_disk(
+    service: ServiceDep,
+    cube: CubeId,
+    k: KParam,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    lat: OptLatParam = None,
+    lon: OptLonParam = None,
+    zone: ZoneParam = None,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    zone_id = parse_zone(zone, "zone") if zone is not None else None
+    query = DiskQuery(k=k, lat=lat, lon=lon, zone=zone_id, selection=sel)
+    return await service.answer(cube, query, fmt, if_none_match)
+
+
+@router.get(
+    "/cubes/{cube}/radius",
+    operation_id="query_radius",
+    summary="Values of the zones whose centres lie within a distance of a point",
+    description=(
+        "Zones whose centres lie within `meters` (geodesic distance on WGS84) of (lat, lon), "
+        "nearest first, each with its distance in metres. With `nearest=true` only the "
+        "nearest zone that has data (any selected variable, any selected step)."
+    ),
+    response_model=ZonesAnswer,
+    responses=_OTHER_FORMATS,
+)
+async def query_radius(
+    service: ServiceDep,
+    cube: CubeId,
+    lat: LatParam,
+    lon: LonParam,
+    meters: MetersParam,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    nearest: NearestParam = False,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    query = RadiusQuery(lat, lon, meters, nearest, sel)
+    return await service.answer(cube, query, fmt, if_none_match)
+
+
+_AREA_DOC = (
+    " With `stats`, one row per time step: mean, min, max, sum, count and std over the "
+    "zones with data, and the area they cover. The grid is equal-area, so the plain mean "
+    "over zones is the area mean (the twelve pentagons, 5/6 of a hexagon, are weighted by "
+    "their area)."
+)
+
+
+@router.get(
+    "/cubes/{cube}/bbox",
+    operation_id="query_bbox",
+    summary="Values or statistics of the zones whose centres lie in a bounding box",
+    description="Zones whose centres lie in the box, ids ascending." + _AREA_DOC,
+    response_model=ZonesAnswer | StatsAnswer,
+    responses=_OTHER_FORMATS,
+)
+async def query_bbox(
+    service: ServiceDep,
+    cube: CubeId,
+    bbox: BboxParam,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    stats: StatsDep,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    west, south, east, north = parse_bbox(bbox)
+    query = BboxQuery(west, south, east, north, stats, sel)
+    geometry = None
+    if stats and fmt == "geojson":
+        geometry = _bbox_geometry(west, south, east, north)
+    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+
+
+def _bbox_geometry(west: float, south: float, east: float, north: float) -> dict[str, Any]:
+    def ring(w: float, e: float) -> list[list[list[float]]]:
+        return [[[w, south], [e, south], [e, north], [w, north], [w, south]]]
+
+    if west <= east:
+        return {"type": "Polygon", "coordinates": ring(west, east)}
+    return {"type": "MultiPolygon", "coordinates": [ring(west, 180.0), ring(-180.0, east)]}
+
+
+async def _json_body(request: Request) -> Any:
+    raw = await request.body()
+    try:
+        return orjson.loads(raw)
+    except orjson.JSONDecodeError:
+        raise InvalidInput("body", f"{len(raw)} bytes", "a JSON document") from None
+
+
+@router.post(
+    "/cubes/{cube}/polygon",
+    operation_id="query_polygon",
+    summary="Values or statistics of the zones whose centres lie in a polygon",
+    description=(
+        "The body is a GeoJSON Polygon or MultiPolygon, or a Feature holding one (RFC 7946). "
+        "Holes are respected; a polygon crossing the antimeridian may be cut there or have "
+        "an edge that steps across it." + _AREA_DOC
+    ),
+    response_model=ZonesAnswer | StatsAnswer,
+    responses=_OTHER_FORMATS,
+    openapi_extra={
+        "requestBody": {
+            "required": True,
+            "content": {"application/json": {"schema": geometry_body_schema()}},
+        }
+    },
+)
+async def query_polygon(
+    request: Request,
+    service: ServiceDep,
+    cube: CubeId,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    stats: StatsDep,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    body = await _json_body(request)
+    area = parse_polygon(body, service.limits.max_polygon_vertices)
+    query = PolygonQuery(area, stats, sel)
+    geometry = area.geometry if stats and fmt == "geojson" else None
+    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+
+
+@router.post(
+    "/cubes/{cube}/points",
+    operation_id="query_points",
+    summary="Values at many points at once",
+    description=(
+        "For pipelines: a body of equal-length `lat` and `lon` arrays; one answer row per "
+        "point (and time step), with `point` the index of the input point. Arrow is the "
+        "natural format."
+    ),
+    response_model=ZonesAnswer,
+    responses=_OTHER_FORMATS,
+    openapi_extra={
+        "requestBody": {
+            "required": True,
+            "content": {
+                "application/json": {"schema": {"$ref": "#/components/schemas/PointsBody"}}
+            },
+        }
+    },
+)
+async def query_points(
+    request: Request,
+    service: ServiceDep,
+    cube: CubeId,
+    sel: SelectionDep,
+    fmt: FormatDep,
+    if_none_match: IfNoneMatch = None,
+) -> Response:
+    body = await _json_body(request)
+    if not isinstance(body, dict) or set(body) != {"lat", "lon"}:
+        raise InvalidInput("body", _keys(body), 'an object {"lat": [...], "lon": [...]}')
+    lat, lon = body["lat"], body["lon"]
+    for name, values in (("lat", lat), ("lon", lon)):
+        if not isinstance(values, list) or not all(
+            isinstance(v, int | float) and not isinstance(v, bool) for v in values
+        ):
+            raise InvalidInput(name, "not a list of numbers", "a list of numbers (degrees)")
+    if len(lat) > service.limits.max_points:
+        raise LimitExceeded("points per request", len(lat), service.limits.max_points)
+    if not lat:
+        raise InvalidInput("lat", "[]", "at least one point")
+    query = PointsQuery(np.asarray(lat, dtype=float), np.asarray(lon, dtype=float), sel)
+    return await service.answer(cube, query, fmt, if_none_match)
+
+
+def _keys(body: Any) -> str:
+    if isinstance(body, dict):
+        return "an object with keys " + ",".join(sorted(map(str, body)))[:100]
+    return type(body).__name__

@@ -1,0 +1,83 @@
+"""Landing page, liveness, readiness and metrics."""
+
+from __future__ import annotations
+
+import anyio.to_thread
+import orjson
+from fastapi import APIRouter
+from starlette.responses import Response
+
+from alveary import __version__
+from alveary.api._schemas import Landing, Ready
+from alveary.api.deps import ServiceDep
+
+__all__ = ["router"]
+
+router = APIRouter(tags=["service"])
+
+_HEALTHY = orjson.dumps({"status": "ok"})
+
+
+@router.get(
+    "/", operation_id="landing", summary="Landing page: links and version", response_model=Landing
+)
+async def landing(service: ServiceDep) -> Response:
+    body = {
+        "title": "alveary",
+        "description": "Spatial and time queries over hexagonal, equal-area data cubes.",
+        "version": __version__,
+        "links": [
+            {"href": "/", "rel": "self", "type": "application/json"},
+            {"href": "/cubes", "rel": "data", "type": "application/json", "title": "Cubes"},
+            {
+                "href": "/openapi.json",
+                "rel": "service-desc",
+                "type": "application/vnd.oai.openapi+json;version=3.1",
+            },
+            {"href": "/docs", "rel": "service-doc", "type": "text/html"},
+        ],
+    }
+    return Response(orjson.dumps(body), media_type="application/json")
+
+
+@router.get(
+    "/healthz",
+    operation_id="health",
+    summary="Liveness: the process is up",
+    responses={200: {"content": {"application/json": {"schema": {"type": "object"}}}}},
+)
+async def health() -> Response:
+    return Response(_HEALTHY, media_type="application/json")
+
+
+@router.get(
+    "/readyz",
+    operation_id="ready",
+    summary="Readiness: every configured store can be reached",
+    response_model=Ready,
+    responses={503: {"description": "A store cannot be reached.", "model": Ready}},
+)
+async def ready(service: ServiceDep) -> Response:
+    status = await anyio.to_thread.run_sync(service.ready)
+    ok = all(v is None for v in status.values())
+    body = {
+        "ready": ok,
+        "cubes": {k: "ok" if v is None else "unreachable" for k, v in status.items()},
+    }
+    headers = None if ok else {"Retry-After": str(service.settings.retry_after)}
+    return Response(
+        orjson.dumps(body),
+        status_code=200 if ok else 503,
+        media_type="application/json",
+        headers=headers,
+    )
+
+
+@router.get(
+    "/metrics",
+    operation_id="metrics",
+    summary="Prometheus metrics (text exposition format)",
+    responses={200: {"content": {"text/plain": {"schema": {"type": "string"}}}}},
+)
+async def metrics(service: ServiceDep) -> Response:
+    return Response(service.metrics.render(), media_type="text/plain; version=0.0.4; charset=utf-8")

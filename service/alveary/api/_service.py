@@ -1,0 +1,150 @@
+"""The state one app process shares between requests, and the request life cycle.
+
+:class:`Service` holds the catalogue, the chunk cache, the limits and the metrics; its
+:meth:`Service.answer` is the path every cube query takes: resolve (no I/O) -> ETag ->
+304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import hashlib
+import logging
+from typing import Any
+
+import anyio.to_thread
+from starlette.responses import Response
+
+from alveary._errors import StoreUnavailable
+from alveary.api._encode import FORMATS, encode
+from alveary.api._metrics import Metrics
+from alveary.api._settings import Settings
+from alveary.query import Catalog, PointQuery, Query, execute, make_plan, resolve
+
+__all__ = ["Service", "etag_for", "matches"]
+
+log = logging.getLogger("alveary.api")
+
+# Answers with at most this many (zone, time) rows are encoded on the event loop; larger
+# ones in a worker thread so that one big answer does not stall small ones.
+_INLINE_ROWS = 2_000
+
+
+def etag_for(key: str, fmt: str) -> str:
+    """A strong ETag from the normalised query and the format.
+
+    >>> etag_for("point|demo|v1|7|rain|0:1|lat=1.0;lon=2.0", "json")[:1]
+    '"'
+    """
+    digest = hashlib.blake2b(f"{key}|{fmt}".encode(), digest_size=16).hexdigest()
+    return f'"{digest}"'
+
+
+def matches(if_none_match: str | None, etag: str) -> bool:
+    """Whether an If-None-Match header matches an ETag (weak comparison, RFC 9110).
+
+    >>> matches('W/"abc", "def"', '"abc"'), matches("*", '"x"'), matches('"y"', '"x"')
+    (True, True, False)
+    """
+    if not if_none_match:
+        return False
+    for tag in if_none_match.split(","):
+        tag = tag.strip()
+        if tag == "*" or tag.removeprefix("W/") == etag:
+            return True
+    return False
+
+
+def _make_cache(max_bytes: int) -> Any:
+    try:
+        from alveary.cube import ChunkCache
+    except ImportError:  # pragma: no cover - the cube layer is a hard dependency
+        return None
+    return ChunkCache(max_bytes)
+
+
+class Service:
+    """Per-process state: catalogue, chunk cache, limits, metrics, refresh loop."""
+
+    def __init__(self, settings: Settings, catalog: Catalog | None = None) -> None:
+        self.settings = settings
+        self.limits = settings.limits
+        self.catalog = catalog if catalog is not None else Catalog(settings.sources())
+        self.cache = _make_cache(settings.cache_bytes)
+        self.metrics = Metrics(self._cube_list, lambda: self.cache)
+        self.cache_control = f"public, max-age={settings.max_age}"
+        self._refresher: asyncio.Task | None = None
+
+    def _cube_list(self) -> list[tuple[str, Any]]:
+        return [(s.id, c) for s, c in self.catalog.cubes()]
+
+    async def start(self) -> None:
+        status = await anyio.to_thread.run_sync(self.catalog.open_all)
+        for cube_id, error in status.items():
+            if error:
+                log.warning("cube %s is not available yet (%s); will retry", cube_id, error)
+        self._refresher = asyncio.create_task(self._refresh_loop())
+
+    async def stop(self) -> None:
+        if self._refresher is not None:
+            self._refresher.cancel()
+            with contextlib.suppress(asyncio.CancelledError):
+                await self._refresher
+
+    async def _refresh_loop(self) -> None:
+        while True:
+            await asyncio.sleep(self.settings.refresh_interval)
+            try:
+                changed = await anyio.to_thread.run_sync(self.catalog.refresh)
+            except Exception:
+                log.exception("cube refresh failed")
+                continue
+            for cube_id, flag in changed.items():
+                if flag:
+                    log.info("cube %s: picked up a new version", cube_id)
+
+    def headers(self, etag: str) -> dict[str, str]:
+        return {"ETag": etag, "Cache-Control": self.cache_control, "Vary": "Accept"}
+
+    async def answer(
+        self,
+        cube_id: str,
+        query: Query,
+        fmt: str,
+        if_none_match: str | None,
+        *,
+        geometry: dict[str, Any] | None = None,
+    ) -> Response:
+        """Run one cube query end to end and build the HTTP response."""
+        resolved = resolve(self.catalog, cube_id, query)
+        etag = etag_for(resolved.key, fmt)
+        headers = self.headers(etag)
+        if matches(if_none_match, etag):
+            return Response(status_code=304, headers=headers)
+        if isinstance(query, PointQuery):
+            plan = make_plan(resolved, self.limits)
+        else:
+            plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
+        result = await execute(plan, self.cache, deadline=self.settings.deadline)
+        rows = result.zones.size * max(result.times.size, 1) if hasattr(result, "zones") else 0
+        if rows <= _INLINE_ROWS:
+            body, media = encode(result, fmt, geometry=geometry)
+        else:
+            body, media = await anyio.to_thread.run_sync(
+                lambda: encode(result, fmt, geometry=geometry)
+            )
+        return Response(body, media_type=media, headers=headers)
+
+    def ready(self) -> dict[str, str | None]:
+        """Check every store now (blocking: run off the loop); id -> None or error name."""
+        self.catalog.refresh()
+        return self.catalog.status()
+
+    @staticmethod
+    def media(fmt: str) -> str:
+        return FORMATS[fmt]
+
+
+def unavailable(cube_id: str) -> StoreUnavailable:
+    return StoreUnavailable(f"the store of cube {cube_id!r} cannot be reached")

@@ -1,0 +1,162 @@
+"""Service settings: ALVEARY_* environment variables, command-line options, a TOML file.
+
+Settings are built and validated once at start-up (never at import time). The cubes come
+from, in order of precedence: a TOML file (``config``) listing them, every cube under a
+local directory (``store``), or the embedded default store with the demo cube.
+
+The TOML file::
+
+    [[cubes]]
+    id = "rainfall"                      # the name in request paths
+    url = "s3://bucket/cubes/rainfall"   # or a local path
+    title = "Rainfall, invented valley"  # optional
+    [cubes.storage_options]              # optional, passed to the store client only
+    endpoint_url = "http://127.0.0.1:9000"
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import tomllib
+from pathlib import Path
+from typing import Annotated, Any
+
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
+
+from alveary._errors import InvalidInput
+from alveary.query import CubeSource, Limits
+
+__all__ = ["CubeConfig", "Settings", "default_store"]
+
+_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+
+
+def default_store() -> Path:
+    """The embedded local store: ``$ALVEARY_STORE`` or ``var/cubes`` under the working dir."""
+    return Path(os.environ.get("ALVEARY_STORE") or "var/cubes")
+
+
+class CubeConfig(BaseModel):
+    """One cube in the TOML file."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    id: str
+    url: str
+    title: str | None = None
+    storage_options: dict[str, Any] | None = None
+
+    @field_validator("id")
+    @classmethod
+    def _id(cls, v: str) -> str:
+        if not _ID.match(v):
+            raise ValueError("cube ids are 1-64 letters, digits, '_', '-', '.'")
+        return v
+
+    def source(self) -> CubeSource:
+        return CubeSource(self.id, self.url, self.title, self.storage_options)
+
+
+def _split(value: Any) -> Any:
+    if isinstance(value, str):
+        return [v.strip() for v in value.split(",") if v.strip()]
+    return value
+
+
+class Settings(BaseSettings):
+    """Everything the service can be configured with (environment prefix ``ALVEARY_``)."""
+
+    model_config = SettingsConfigDict(env_prefix="ALVEARY_", extra="ignore")
+
+    config: Path | None = Field(None, description="TOML file listing the cubes to serve.")
+    store: Path | None = Field(None, description="Serve every cube under this local directory.")
+    cubes: list[CubeConfig] = Field(default_factory=list, description="Cubes (from config).")
+    host: str = "127.0.0.1"
+    port: int = Field(8000, ge=0, le=65535)
+    workers: int = Field(1, ge=1, le=64)
+    log_level: str = "info"
+
+    cache_bytes: int = Field(256 * 2**20, ge=0, description="Decoded-chunk cache per process.")
+    max_age: int = Field(60, ge=0, description="Cache-Control max-age of answers, seconds.")
+    refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
+    deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")
+    retry_after: int = Field(5, ge=1, description="Retry-After sent with 503, seconds.")
+    cors_origins: Annotated[list[str], NoDecode] = Field(
+        default_factory=list, description="CORS allow-list (comma-separated in the environment)."
+    )
+
+    max_zones: int = Field(Limits.max_zones, ge=1)
+    max_k: int = Field(Limits.max_k, ge=0)
+    max_polygon_vertices: int = Field(Limits.max_polygon_vertices, ge=4)
+    max_points: int = Field(Limits.max_points, ge=1)
+    max_cells: int = Field(Limits.max_cells, ge=1)
+    max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
+    max_body_bytes: int = Field(8 * 2**20, ge=1024)
+
+    _split_origins = field_validator("cors_origins", mode="before")(_split)
+
+    @model_validator(mode="after")
+    def _load_cubes(self) -> Settings:
+        if self.config is not None and not self.cubes:
+            self.cubes = read_cube_file(self.config)
+        return self
+
+    @property
+    def limits(self) -> Limits:
+        return Limits(
+            max_zones=self.max_zones,
+            max_k=self.max_k,
+            max_polygon_vertices=self.max_polygon_vertices,
+            max_points=self.max_points,
+            max_cells=self.max_cells,
+            max_read_bytes=self.max_read_bytes,
+        )
+
+    def store_dir(self) -> Path:
+        """The local directory whose cubes are served when no TOML file is given."""
+        return self.store if self.store is not None else default_store()
+
+    def sources(self) -> list[CubeSource]:
+        """The configured cubes: the TOML list, else every cube under the store directory."""
+        if self.cubes:
+            return [c.source() for c in self.cubes]
+        return scan_store(self.store_dir())
+
+
+def read_cube_file(path: Path) -> list[CubeConfig]:
+    """Read the ``[[cubes]]`` list of a TOML file."""
+    try:
+        data = tomllib.loads(Path(path).read_text())
+    except FileNotFoundError:
+        raise InvalidInput("config", str(path), "an existing TOML file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InvalidInput("config", str(path), f"valid TOML ({exc})") from None
+    cubes = data.get("cubes")
+    if not isinstance(cubes, list) or not cubes:
+        raise InvalidInput("config", str(path), "a TOML file with at least one [[cubes]] table")
+    out = [CubeConfig.model_validate(c) for c in cubes]
+    ids = [c.id for c in out]
+    if len(set(ids)) != len(ids):
+        raise InvalidInput("config", str(path), "unique cube ids")
+    return out
+
+
+def scan_store(root: Path) -> list[CubeSource]:
+    """Every cube directly under a local directory (a directory holding a cube marker).
+
+    The cube id is the directory name.
+    """
+    root = Path(root)
+    if not root.is_dir():
+        return []
+    out = []
+    for child in sorted(root.iterdir()):
+        if child.is_dir() and _ID.match(child.name) and _looks_like_cube(child):
+            out.append(CubeSource(child.name, str(child.resolve())))
+    return out
+
+
+def _looks_like_cube(path: Path) -> bool:
+    return any((path / marker).exists() for marker in ("zarr.json", ".zgroup", "current"))

@@ -1,0 +1,189 @@
+"""Request dependencies and parameters, as named ``Annotated`` aliases.
+
+Every query parameter the API takes is declared once here with its bounds, description
+and an example, so every operation documents it the same way.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+from fastapi import Depends, Header, Path, Query, Request
+
+from alveary.api._encode import negotiate
+from alveary.api._service import Service
+from alveary.grid import MAX_LEVEL
+from alveary.query import Selection, parse_datetime, parse_stats, parse_vars
+
+__all__ = [
+    "AcceptHeader",
+    "BboxParam",
+    "CubeFormat",
+    "CubeId",
+    "FormatParam",
+    "IfNoneMatch",
+    "KParam",
+    "LatParam",
+    "LonParam",
+    "MetersParam",
+    "NearestParam",
+    "OptLatParam",
+    "OptLonParam",
+    "SelectionDep",
+    "ServiceDep",
+    "StatsParam",
+    "ZoneFormat",
+    "ZoneParam",
+    "ZonePath",
+]
+
+
+def get_service(request: Request) -> Service:
+    return request.app.state.service
+
+
+ServiceDep = Annotated[Service, Depends(get_service)]
+
+CubeId = Annotated[
+    str,
+    Path(description="Cube id, as listed by /cubes.", examples=["demo"], max_length=64),
+]
+LatParam = Annotated[
+    float,
+    Query(ge=-90, le=90, description="Latitude, degrees north (WGS84).", examples=[45.2]),
+]
+LonParam = Annotated[
+    float,
+    Query(ge=-180, le=180, description="Longitude, degrees east (WGS84).", examples=[7.6]),
+]
+OptLatParam = Annotated[
+    float | None,
+    Query(
+        ge=-90, le=90, description="Latitude of the centre point (or give zone).", examples=[45.2]
+    ),
+]
+OptLonParam = Annotated[
+    float | None,
+    Query(
+        ge=-180, le=180, description="Longitude of the centre point (or give zone).", examples=[7.6]
+    ),
+]
+ZoneParam = Annotated[
+    str | None,
+    Query(
+        description="Centre zone: integer id or text form (instead of lat and lon).",
+        max_length=32,
+        examples=["7c-12-34"],
+    ),
+]
+ZonePath = Annotated[
+    str,
+    Path(description="Zone: integer id or text form such as 7c-12-34.", max_length=32),
+]
+LevelParam = Annotated[
+    int | None,
+    Query(ge=0, le=MAX_LEVEL, description="Refinement level; default: the cube's finest."),
+]
+VarsParam = Annotated[
+    str | None,
+    Query(
+        alias="vars",
+        description="Comma-separated variable names; default: every variable.",
+        max_length=1000,
+    ),
+]
+DatetimeParam = Annotated[
+    str | None,
+    Query(
+        alias="datetime",
+        description=(
+            "RFC 3339 instant (the time step in force then: the latest at or before it), "
+            "or interval start/end with '..' for an open end (both ends included). "
+            "Default: the latest time step."
+        ),
+        max_length=100,
+        examples=["2024-06-01T00:00:00Z/.."],
+    ),
+]
+KParam = Annotated[
+    int,
+    Query(
+        ge=0,
+        le=10_000,
+        description="Rings around the centre zone (0: the zone alone).",
+        examples=[2],
+    ),
+]
+MetersParam = Annotated[
+    float,
+    Query(
+        ge=0,
+        le=20_037_509,
+        description="Radius in metres (geodesic, WGS84), e.g. a GPS fix's accuracy.",
+        examples=[250.0],
+    ),
+]
+NearestParam = Annotated[
+    bool,
+    Query(description="Only the nearest zone with data for any selected variable and step."),
+]
+BboxParam = Annotated[
+    str,
+    Query(
+        description="west,south,east,north in degrees; west > east crosses the antimeridian.",
+        max_length=200,
+        examples=["7.0,45.0,7.5,45.4"],
+    ),
+]
+StatsParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            "Comma-separated statistics per time step instead of per-zone values: "
+            "mean,min,max,sum,count,std (or all)."
+        ),
+        max_length=100,
+        examples=["mean,max"],
+    ),
+]
+CubeFormat = Literal["json", "geojson", "arrow", "csv"]
+ZoneFormat = Literal["json", "geojson"]
+FormatParam = Annotated[
+    CubeFormat | None,
+    Query(description="Output format; overrides the Accept header."),
+]
+ZoneFormatParam = Annotated[
+    ZoneFormat | None,
+    Query(alias="f", description="Output format; overrides the Accept header."),
+]
+AcceptHeader = Annotated[str | None, Header(include_in_schema=False)]
+IfNoneMatch = Annotated[str | None, Header(include_in_schema=False)]
+
+
+def selection(
+    level: LevelParam = None, vars_: VarsParam = None, time: DatetimeParam = None
+) -> Selection:
+    """Level, variables and time of a cube query."""
+    return Selection(level=level, variables=parse_vars(vars_), time=parse_datetime(time))
+
+
+SelectionDep = Annotated[Selection, Depends(selection)]
+
+
+def cube_format(f: FormatParam = None, accept: AcceptHeader = None) -> str:
+    return negotiate(f, accept, ("json", "geojson", "arrow", "csv"))
+
+
+def zone_format(f: ZoneFormatParam = None, accept: AcceptHeader = None) -> str:
+    return negotiate(f, accept, ("json", "geojson"))
+
+
+FormatDep = Annotated[str, Depends(cube_format)]
+ZoneFormatDep = Annotated[str, Depends(zone_format)]
+
+
+def stats_names(stats: StatsParam = None) -> tuple[str, ...]:
+    return parse_stats(stats)
+
+
+StatsDep = Annotated[tuple[str, ...], Depends(stats_names)]

@@ -1,0 +1,216 @@
+"""Validated requests: what a caller asked for, before any cube is consulted.
+
+Each query type is a frozen dataclass built from already-parsed parameters; ``key()``
+gives a canonical text form (the "normalised query" that ETags are made from).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from alveary import grid
+from alveary._errors import InvalidInput
+from alveary.query._geometry import Area
+from alveary.query._time import TimeSpec, parse_datetime
+
+__all__ = [
+    "BboxQuery",
+    "DiskQuery",
+    "PointQuery",
+    "PointsQuery",
+    "PolygonQuery",
+    "Query",
+    "RadiusQuery",
+    "Selection",
+    "check_lat_lon",
+    "parse_vars",
+    "parse_zone",
+]
+
+
+def parse_vars(text: str | None) -> tuple[str, ...] | None:
+    """Parse ``vars=a,b`` (None or empty: every variable of the cube), keeping order.
+
+    >>> parse_vars("rain, temperature,rain")
+    ('rain', 'temperature')
+    >>> parse_vars(None) is None
+    True
+    """
+    if text is None or not text.strip():
+        return None
+    names = [t.strip() for t in text.split(",") if t.strip()]
+    return tuple(dict.fromkeys(names))
+
+
+def parse_zone(text: str, parameter: str = "zone") -> int:
+    """A zone given as its integer id or its text form, checked, as an int.
+
+    >>> z = parse_zone("0n")
+    >>> parse_zone(str(z)) == z
+    True
+    >>> parse_zone("7")
+    Traceback (most recent call last):
+    ...
+    alveary._errors.InvalidInput: zone is '7'; allowed: a zone id: an integer or text such as 5b-20-7
+    """  # noqa: E501
+    text = str(text).strip()
+    allowed = "a zone id: an integer or text such as 5b-20-7"
+    try:
+        if text.isdigit():
+            value = int(text)
+            if value >= 2**63:
+                raise OverflowError(text)
+            grid.zone_level(np.uint64(value))  # validates the id
+        else:
+            value = int(grid.zone_from_text(text))
+    except (InvalidInput, OverflowError, ValueError, TypeError):
+        raise InvalidInput(parameter, text, allowed) from None
+    return value
+
+
+def check_lat_lon(lat: float, lon: float, *, index: int | None = None) -> tuple[float, float]:
+    """Check one position: latitude in [-90, 90], longitude in [-180, 180].
+
+    >>> check_lat_lon(91, 0)
+    Traceback (most recent call last):
+    ...
+    alveary._errors.InvalidInput: lat is 91.0; allowed: [-90, 90]
+    """
+    lat, lon = float(lat), float(lon)
+    if not (math.isfinite(lat) and -90.0 <= lat <= 90.0):
+        raise InvalidInput("lat", lat, "[-90, 90]", index=index)
+    if not (math.isfinite(lon) and -180.0 <= lon <= 180.0):
+        raise InvalidInput("lon", lon, "[-180, 180]", index=index)
+    return lat, lon
+
+
+@dataclass(frozen=True)
+class Selection:
+    """The parts every cube query shares: level, variables and time.
+
+    ``level`` None means the cube's finest level, ``variables`` None every variable.
+    """
+
+    level: int | None = None
+    variables: tuple[str, ...] | None = None
+    time: TimeSpec = field(default_factory=lambda: parse_datetime(None))
+
+
+@dataclass(frozen=True)
+class PointQuery:
+    """The zone under one point."""
+
+    lat: float
+    lon: float
+    selection: Selection = field(default_factory=Selection)
+    op = "point"
+
+    def key(self) -> str:
+        return f"lat={self.lat!r};lon={self.lon!r}"
+
+
+@dataclass(frozen=True)
+class DiskQuery:
+    """Every zone within ``k`` steps of a centre zone (given, or the zone under a point)."""
+
+    k: int
+    lat: float | None = None
+    lon: float | None = None
+    zone: int | None = None
+    selection: Selection = field(default_factory=Selection)
+    op = "disk"
+
+    def __post_init__(self) -> None:
+        if self.k < 0:
+            raise InvalidInput("k", self.k, ">= 0")
+        if self.zone is None and (self.lat is None or self.lon is None):
+            raise InvalidInput("lat", None, "lat and lon, or zone")
+        if self.zone is not None and (self.lat is not None or self.lon is not None):
+            raise InvalidInput("zone", self.zone, "either zone, or lat and lon, not both")
+
+    def key(self) -> str:
+        return f"k={self.k};lat={self.lat!r};lon={self.lon!r};zone={self.zone}"
+
+
+@dataclass(frozen=True)
+class RadiusQuery:
+    """Zones whose centres lie within ``meters`` of a point (geodesic, WGS84)."""
+
+    lat: float
+    lon: float
+    meters: float
+    nearest: bool = False
+    selection: Selection = field(default_factory=Selection)
+    op = "radius"
+
+    def __post_init__(self) -> None:
+        if not (math.isfinite(self.meters) and self.meters >= 0):
+            raise InvalidInput("meters", self.meters, ">= 0")
+
+    def key(self) -> str:
+        return f"lat={self.lat!r};lon={self.lon!r};m={self.meters!r};nearest={self.nearest}"
+
+
+@dataclass(frozen=True)
+class BboxQuery:
+    """Zones whose centres lie in a longitude-latitude box; values or statistics."""
+
+    west: float
+    south: float
+    east: float
+    north: float
+    stats: tuple[str, ...] = ()
+    selection: Selection = field(default_factory=Selection)
+    op = "bbox"
+
+    def key(self) -> str:
+        box = (self.west, self.south, self.east, self.north)
+        return f"bbox={','.join(repr(v) for v in box)};stats={','.join(self.stats)}"
+
+
+@dataclass(frozen=True)
+class PolygonQuery:
+    """Zones whose centres lie in a polygon; values or statistics."""
+
+    area: Area
+    stats: tuple[str, ...] = ()
+    selection: Selection = field(default_factory=Selection)
+    op = "polygon"
+
+    def key(self) -> str:
+        return f"geometry={self.area.key};stats={','.join(self.stats)}"
+
+
+@dataclass(frozen=True, eq=False)
+class PointsQuery:
+    """Many points at once: one answer row per point and time step."""
+
+    lat: np.ndarray
+    lon: np.ndarray
+    selection: Selection = field(default_factory=Selection)
+    op = "points"
+
+    def __post_init__(self) -> None:
+        lat = np.asarray(self.lat, dtype=np.float64).ravel()
+        lon = np.asarray(self.lon, dtype=np.float64).ravel()
+        if lat.shape != lon.shape:
+            raise InvalidInput("lon", f"{lon.size} values", f"as many as lat ({lat.size})")
+        bad = np.nonzero(~(np.abs(lat) <= 90))[0]
+        if bad.size:
+            raise InvalidInput("lat", float(lat[bad[0]]), "[-90, 90]", index=int(bad[0]))
+        bad = np.nonzero(~(np.abs(lon) <= 180))[0]
+        if bad.size:
+            raise InvalidInput("lon", float(lon[bad[0]]), "[-180, 180]", index=int(bad[0]))
+        object.__setattr__(self, "lat", lat)
+        object.__setattr__(self, "lon", lon)
+
+    def key(self) -> str:
+        digest = hashlib.blake2b(self.lat.tobytes() + b"|" + self.lon.tobytes(), digest_size=16)
+        return f"points={self.lat.size}:{digest.hexdigest()}"
+
+
+Query = PointQuery | DiskQuery | RadiusQuery | BboxQuery | PolygonQuery | PointsQuery

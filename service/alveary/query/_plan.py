@@ -1,0 +1,256 @@
+"""From a validated query to a plan: zones, time range and chunk keys, with no I/O.
+
+Two pure steps. :func:`resolve` fixes the cube, level, variables and time-step range and
+yields the normalised query key (what an ETag is made from) without touching the store.
+:func:`make_plan` turns the query into zones by grid arithmetic, checks every configured
+limit before anything is read, and asks the cube which chunks those zones need.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from alveary import grid
+from alveary._errors import InvalidInput, LimitExceeded
+from alveary.query._catalog import Catalog
+from alveary.query._geometry import bbox_area
+from alveary.query._models import (
+    BboxQuery,
+    DiskQuery,
+    PointQuery,
+    PointsQuery,
+    PolygonQuery,
+    Query,
+    RadiusQuery,
+    check_lat_lon,
+)
+from alveary.query._result import VariableInfo
+from alveary.query._time import select_times
+
+__all__ = ["Limits", "Plan", "Resolved", "make_plan", "resolve"]
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Per-request limits; a request over one is refused before any chunk is read."""
+
+    max_zones: int = 250_000
+    max_k: int = 200
+    max_polygon_vertices: int = 20_000
+    max_points: int = 10_000
+    max_cells: int = 10_000_000
+    max_read_bytes: int = 2_000_000_000
+
+
+def _meta(value: Any, name: str) -> str:
+    if isinstance(value, dict):
+        return str(value.get(name) or "")
+    return str(getattr(value, name, "") or "")
+
+
+@dataclass(frozen=True)
+class Resolved:
+    """A query bound to one cube version: level, variables and time-step range fixed."""
+
+    cube_id: str
+    cube: Any = field(repr=False)
+    version: str
+    level: int
+    variables: tuple[str, ...]
+    t0: int
+    t1: int
+    query: Query
+
+    @property
+    def times(self) -> np.ndarray:
+        return np.asarray(self.cube.times)[self.t0 : self.t1]
+
+    @property
+    def key(self) -> str:
+        """The normalised query: identical for requests that must give identical answers."""
+        return "|".join(
+            [
+                self.query.op,
+                self.cube_id,
+                self.version,
+                str(self.level),
+                ",".join(self.variables),
+                f"{self.t0}:{self.t1}",
+                self.query.key(),
+            ]
+        )
+
+    def variable_info(self) -> dict[str, VariableInfo]:
+        meta = self.cube.variables
+        return {
+            v: VariableInfo(v, _meta(meta[v], "units"), _meta(meta[v], "long_name"))
+            for v in self.variables
+        }
+
+
+def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
+    """Bind a query to the current version of a cube (no store access).
+
+    Raises
+    ------
+    NotFound
+        Unknown cube.
+    InvalidInput
+        A level the cube does not hold, an unknown variable, an instant before the time axis.
+    """
+    cube = catalog.get(cube_id)
+    sel = query.selection
+    levels = tuple(int(v) for v in cube.levels)
+    if sel.level is None:
+        level = levels[-1]
+        if isinstance(query, DiskQuery) and query.zone is not None:
+            level = _zone_level(query.zone, levels)
+    else:
+        level = int(sel.level)
+        if level not in levels:
+            raise InvalidInput("level", level, f"one of the cube's levels {list(levels)}")
+        if isinstance(query, DiskQuery) and query.zone is not None:
+            if _zone_level(query.zone, levels) != level:
+                raise InvalidInput("level", level, "the level of the given zone (or no level)")
+    names = tuple(cube.variables)
+    if sel.variables is None:
+        variables = names
+    else:
+        unknown = [v for v in sel.variables if v not in cube.variables]
+        if unknown:
+            raise InvalidInput("vars", unknown[0], f"variables of this cube: {', '.join(names)}")
+        variables = sel.variables
+    t0, t1 = select_times(sel.time, np.asarray(cube.times))
+    return Resolved(cube_id, cube, str(cube.version), level, variables, t0, t1, query)
+
+
+def _zone_level(zone: int, levels: tuple[int, ...]) -> int:
+    try:
+        level = int(grid.zone_level(np.uint64(zone)))
+    except (InvalidInput, OverflowError, ValueError):
+        raise InvalidInput("zone", zone, "a zone id") from None
+    if level not in levels:
+        raise InvalidInput("zone", zone, f"a zone of one of the cube's levels {list(levels)}")
+    return level
+
+
+@dataclass
+class Plan:
+    """Everything the executor needs, computed without I/O.
+
+    ``zones`` are the rows of the answer (they may repeat for multi-point queries);
+    ``read_zones`` the distinct zones read; ``take`` maps rows to ``read_zones``;
+    ``chunks`` variable -> chunk keys; ``max_bytes`` the most that will be read.
+    """
+
+    resolved: Resolved
+    zones: np.ndarray
+    read_zones: np.ndarray
+    take: np.ndarray | None
+    extra: dict[str, np.ndarray]
+    chunks: dict[str, list[Any]]
+    max_bytes: int
+    stats: tuple[str, ...] = ()
+
+    @property
+    def chunk_count(self) -> int:
+        return sum(len(v) for v in self.chunks.values())
+
+
+def _check(limit: str, requested: float, maximum: float, approximate: bool = False) -> None:
+    if requested > maximum:
+        raise LimitExceeded(limit, math.ceil(requested) if approximate else requested, maximum)
+
+
+def _estimate_zones(area_m2: float, level: int) -> float:
+    return area_m2 / grid.zone_area(level)
+
+
+def _precheck_area(area_m2: float, level: int, limits: Limits) -> None:
+    # An estimate from the area, generous enough never to refuse a request the exact
+    # count would allow (the exact count is checked after enumeration).
+    estimate = _estimate_zones(area_m2, level)
+    if estimate > 1.25 * limits.max_zones + 64:
+        _check("zones per request", estimate, limits.max_zones, approximate=True)
+
+
+def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    q, level = resolved.query, resolved.level
+    if isinstance(q, PointQuery):
+        check_lat_lon(q.lat, q.lon)
+        return np.atleast_1d(grid.point_to_zone(q.lat, q.lon, level)).astype(np.uint64), {}
+    if isinstance(q, DiskQuery):
+        _check("k", q.k, limits.max_k)
+        _check("zones per request", 3 * q.k * (q.k + 1) + 1, limits.max_zones)
+        if q.zone is not None:
+            centre = np.uint64(q.zone)
+        else:
+            check_lat_lon(q.lat, q.lon)
+            centre = grid.point_to_zone(q.lat, q.lon, level)
+        ids, steps = grid.zone_disk(centre, q.k, return_steps=True)
+        order = np.lexsort((ids, steps))
+        return ids[order], {"steps": np.asarray(steps)[order].astype(np.int32)}
+    if isinstance(q, RadiusQuery):
+        check_lat_lon(q.lat, q.lon)
+        _precheck_area(math.pi * q.meters**2, level, limits)
+        ids, dist = grid.zones_in_radius(q.lat, q.lon, q.meters, level, return_distance=True)
+        order = np.lexsort((ids, dist))
+        return ids[order], {"distance_m": np.asarray(dist, dtype=np.float64)[order]}
+    if isinstance(q, BboxQuery):
+        _precheck_area(bbox_area(q.west, q.south, q.east, q.north), level, limits)
+        return grid.zones_in_bbox(q.west, q.south, q.east, q.north, level), {}
+    if isinstance(q, PolygonQuery):
+        _check("polygon vertices", q.area.vertices, limits.max_polygon_vertices)
+        _precheck_area(q.area.area_m2, level, limits)
+        return grid.zones_in_polygon(q.area.geometry, level), {}
+    if isinstance(q, PointsQuery):
+        _check("points per request", q.lat.size, limits.max_points)
+        zones = grid.point_to_zone(q.lat, q.lon, level).astype(np.uint64).reshape(-1)
+        return zones, {"point": np.arange(zones.size, dtype=np.uint32)}
+    raise TypeError(f"not a query: {q!r}")  # pragma: no cover
+
+
+def make_plan(resolved: Resolved, limits: Limits) -> Plan:
+    """Zones, per-row extras and chunk keys for a resolved query; checks every limit.
+
+    Raises
+    ------
+    LimitExceeded
+        Too many zones, steps, vertices, points, time steps × zones or bytes.
+    """
+    zones, extra = _locate(resolved, limits)
+    zones = np.asarray(zones, dtype=np.uint64)
+    if isinstance(resolved.query, PointsQuery):
+        read_zones, take = np.unique(zones, return_inverse=True)
+    else:
+        read_zones, take = zones, None
+    _check("zones per request", int(read_zones.size), limits.max_zones)
+    steps = resolved.t1 - resolved.t0
+    _check("time steps × zones", steps * int(read_zones.size), limits.max_cells)
+    chunks: dict[str, list[Any]] = {}
+    total = 0
+    if steps and read_zones.size:
+        times = resolved.times
+        start, end = times[0], times[-1]
+        sorted_zones = np.sort(read_zones)
+        for var in resolved.variables:
+            keys, nbytes = _chunk_plan(resolved.cube.plan(var, sorted_zones, start, end))
+            chunks[var] = keys
+            total += nbytes
+    _check("bytes read per request", total, limits.max_read_bytes)
+    stats = getattr(resolved.query, "stats", ())
+    return Plan(resolved, zones, read_zones, take, extra, chunks, total, stats)
+
+
+def _chunk_plan(plan: Any) -> tuple[list[Any], int]:
+    """Read the cube's plan object: (chunk keys, max bytes), whatever its exact shape."""
+    if isinstance(plan, tuple) and len(plan) == 2:
+        keys, nbytes = plan
+    else:
+        keys = getattr(plan, "keys", None) or getattr(plan, "chunks", None) or []
+        nbytes = getattr(plan, "max_bytes", None) or getattr(plan, "nbytes", 0)
+    return list(keys), int(nbytes)

@@ -1,0 +1,73 @@
+"""Columnar query results, the one shape every output format is encoded from."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["StatsResult", "VariableInfo", "ZoneResult"]
+
+
+@dataclass(frozen=True)
+class VariableInfo:
+    """A variable's name and CF-style metadata."""
+
+    name: str
+    units: str = ""
+    long_name: str = ""
+
+
+@dataclass
+class ZoneResult:
+    """Values per zone and time step.
+
+    Attributes
+    ----------
+    zones:
+        uint64 (n,): one row per answered zone (or per point, for multi-point queries,
+        where a zone may repeat).
+    times:
+        datetime64[s] (t,).
+    values:
+        variable -> float64 (t, n); NaN where the cube has no data.
+    extra:
+        Per-row columns that belong to the query: ``steps`` (disk), ``distance_m``
+        (radius), ``point`` (multi-point: the index of the input point).
+    """
+
+    cube: str
+    version: str
+    level: int
+    variables: dict[str, VariableInfo]
+    times: np.ndarray
+    zones: np.ndarray
+    values: dict[str, np.ndarray]
+    extra: dict[str, np.ndarray] = field(default_factory=dict)
+    kind: str = "zones"
+
+    @property
+    def rows(self) -> int:
+        """Number of (zone, time) rows in the long form."""
+        return int(self.zones.size * self.times.size)
+
+
+@dataclass
+class StatsResult:
+    """Statistics per time step over the zones of an area.
+
+    ``stats`` maps variable -> statistic -> float64 (t,); each variable also carries
+    ``area_m2`` (area of the zones that had data). ``area_m2`` on the result is the area
+    of every zone of the selection, ``zone_count`` their number.
+    """
+
+    cube: str
+    version: str
+    level: int
+    variables: dict[str, VariableInfo]
+    times: np.ndarray
+    zone_count: int
+    area_m2: float
+    names: tuple[str, ...]
+    stats: dict[str, dict[str, np.ndarray]]
+    kind: str = "stats"
