@@ -48,13 +48,14 @@ def canonical(strip, a, b, n):
     """Carry lattice points (a, b) of strip charts to their owner.
 
     Returns (region, a, b): region 0..4 with 0 < a <= 2n, 0 <= b < n, or NORTH / SOUTH
-    (a = b = 0 then). Works for any integer scale n (e.g. 3n for corners in thirds).
+    (a = b = 0 then). Works for any integer scale n (e.g. 3n for corners in thirds), and
+    for real-valued points too (they stay real-valued).
     """
-    strip = np.array(strip, dtype=np.int64, copy=True)
-    a = np.array(a, dtype=np.int64, copy=True)
-    b = np.array(b, dtype=np.int64, copy=True)
-    strip, a, b = np.broadcast_arrays(strip, a, b)
-    strip, a, b = strip.copy(), a.copy(), b.copy()
+    kind = np.float64 if np.result_type(a, b).kind == "f" else np.int64
+    strip, a, b = np.broadcast_arrays(
+        np.asarray(strip, dtype=np.int64), np.asarray(a, dtype=kind), np.asarray(b, dtype=kind)
+    )
+    a, b = a.copy(), b.copy()
     region = strip % 5
     n2 = 2 * n
     for _ in range(12):
@@ -71,7 +72,7 @@ def canonical(strip, a, b, n):
         r4 = rest & (b >= n) & (a <= n)
         r5 = rest & (b >= n) & (a > n) & (a <= n2)
         r6 = rest & (a > n2) & ~r5
-        na, nb, dk = a.copy(), b.copy(), np.zeros_like(a)
+        na, nb, dk = a.copy(), b.copy(), np.zeros(a.shape, dtype=np.int64)
         # northern seam, to strip k-1: (s, t) -> (s+t, -s)
         na[r1], nb[r1], dk[r1] = a[r1] + b[r1], -a[r1], -1
         # northern seam, to strip k+1: (s, t) -> (-t, s+t)
@@ -204,4 +205,62 @@ def boundaries(ids: np.ndarray) -> np.ndarray:
         xyz[dup] = np.nan
         order = np.argsort(dup, axis=-1, kind="stable")
         out[sel] = np.take_along_axis(xyz, order[..., None], axis=-2)
+    return out
+
+
+def _crossings(p0: np.ndarray, p1: np.ndarray, n3: int):
+    """Where segments p0 -> p1 (thirds, (..., 2)) cross face edges: (lambda, point) x 3.
+
+    Face edges are the lines s, t or s + t = a multiple of n (3n in thirds). A corner never
+    lies on one, and a zone's edge is too short to cross a family twice.
+    """
+    g0 = np.stack([p0[..., 0], p0[..., 1], p0[..., 0] + p0[..., 1]], axis=-1)
+    g1 = np.stack([p1[..., 0], p1[..., 1], p1[..., 0] + p1[..., 1]], axis=-1)
+    lo = np.minimum(g0, g1)
+    line = np.ceil(lo / n3) * n3
+    hit = line < np.maximum(g0, g1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lam = np.where(hit, (line - g0) / (g1 - g0), np.inf)
+    return lam  # (..., 3)
+
+
+def exact_boundaries(ids: np.ndarray) -> list[np.ndarray]:
+    """Per zone, its boundary with the points where it bends across face edges.
+
+    The boundary is straight in each face's plane; where it crosses a face edge it bends
+    on the globe. Corners alone understate that bend (most for pentagons, whose five edges
+    all cross face edges); adding the crossings gives the zone's true outline.
+    """
+    level, strip, a, b = ids_to_chart(ids)
+    out: list[np.ndarray] = [np.empty((0, 3))] * ids.size
+    for lv in np.unique(level):
+        sel = np.flatnonzero(level == lv)
+        n3 = 3 * (1 << int(lv))
+        ca = 3 * a[sel][:, None] + CORNERS3[:, 0]
+        cb = 3 * b[sel][:, None] + CORNERS3[:, 1]
+        corner = np.stack([ca, cb], axis=-1).astype(np.float64)  # (N, 6, 2)
+        nxt = np.roll(corner, -1, axis=1)
+        region, ka, kb = canonical(strip[sel][:, None], ca, cb, n3)
+        key = (region * n3 * 8 + ka) * n3 * 4 + kb
+        degenerate = key == np.roll(key, -1, axis=1)  # edge i -> i+1 folds onto itself
+        lam = _crossings(corner, nxt, n3)  # (N, 6, 3)
+        lam = np.where(degenerate[..., None], np.inf, np.sort(lam, axis=-1))
+        # points: corner i, then its edge's crossings in order -> (N, 6, 4, 2)
+        frac = np.concatenate([np.zeros((*lam.shape[:-1], 1)), lam], axis=-1)
+        pts = (
+            corner[:, :, None, :]
+            + np.where(np.isfinite(frac), frac, 0.0)[..., None] * (nxt - corner)[:, :, None, :]
+        )
+        valid = np.isfinite(frac)
+        valid[:, :, 0] = True
+        rows = np.repeat(strip[sel][:, None, None], 6, axis=1).repeat(4, axis=2)
+        reg, pa, pb = canonical(rows, pts[..., 0], pts[..., 1], n3)
+        xyz = chart_to_xyz(reg, pa / n3, pb / n3)  # (N, 6, 4, 3)
+        pkey = (reg * n3 * 8 + np.rint(pa * 3)) * n3 * 40 + np.rint(pb * 3)
+        for row, zi in enumerate(sel):
+            v = valid[row].reshape(-1)
+            pts_xyz = xyz[row].reshape(-1, 3)[v]
+            k = pkey[row].reshape(-1)[v]
+            keep = k != np.roll(k, 1)
+            out[zi] = pts_xyz[keep]
     return out

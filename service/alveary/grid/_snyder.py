@@ -124,8 +124,9 @@ def project(lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray, n
     """Face and plane position in metres of authalic (lat, lon) in degrees.
 
     >>> face, x, y = project(90.0, 0.0)
-    >>> int(face), round(float(np.hypot(x, y)))  # the pole is on an edge midpoint
-    (1, 3637500)
+    >>> # The pole is on an edge midpoint: half the circumradius from the face centre.
+    >>> round(float(np.hypot(x, y) / (CIRCUMRADIUS * R_AUTHALIC)), 9)
+    0.5
     """
     xyz = lonlat_to_xyz(np.asarray(lat, dtype=np.float64), np.asarray(lon, dtype=np.float64))
     face = face_of(xyz)
