@@ -160,11 +160,11 @@ class ReferenceGrid:
         for g, b in forms:
             nz = [x for x in b if x]
             if len(nz) == 1:
-                v = self.F[g][[i for i in range(3) if b[i]][0]]
+                v = self.F[g][next(i for i in range(3) if b[i])]
                 if v == self.P:
-                    return spec_id(int(round(math.log2(n))), NORTH_APEX_REGION, 0, 0)
+                    return spec_id(n.bit_length() - 1, NORTH_APEX_REGION, 0, 0)
                 if v == self.Q:
-                    return spec_id(int(round(math.log2(n))), SOUTH_APEX_REGION, 0, 0)
+                    return spec_id(n.bit_length() - 1, SOUTH_APEX_REGION, 0, 0)
         level = n.bit_length() - 1
         owners = set()
         for g, b in forms:

@@ -298,7 +298,9 @@ def test_authalic_latitude_matches_proj_cea():
     ours = np.asarray(_authalic.geodetic_to_authalic(lat))
     np.testing.assert_allclose(ours, expected, atol=1e-9)
     # analytic: the authalic latitude is an odd function and maps the poles onto the poles
-    np.testing.assert_allclose(np.asarray(_authalic.geodetic_to_authalic(-lat)), -ours, atol=1e-12)
+    np.testing.assert_allclose(
+        np.asarray(_authalic.geodetic_to_authalic(-lat)), -ours, rtol=0, atol=1e-12
+    )
     assert float(_authalic.geodetic_to_authalic(90.0)) == 90.0
     assert float(_authalic.geodetic_to_authalic(-90.0)) == -90.0
     # textbook value at 45 degrees: the authalic latitude is about 0.128 degrees smaller
@@ -369,7 +371,7 @@ def test_zone_centres_on_proj_lattice_at_fine_levels(ref, isea, motions):
         lon = rng.uniform(-180, 180, 2000)
         zlat, zlon = grid.zone_to_point(grid.point_to_zone(lat, lon, level))
         beta = np.asarray(_authalic.geodetic_to_authalic(zlat))
-        face, x, y = _snyder.project(beta, zlon)
+        face, _, _ = _snyder.project(beta, zlon)
         theirs = proj_forward(isea, beta, zlon)
         p = unit(beta, zlon)
         ok = edge_distance(ref, p) > EDGE_MARGIN
