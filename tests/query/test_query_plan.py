@@ -32,7 +32,7 @@ from alveary.query import (
     parse_polygon,
     resolve,
 )
-from conftest import MemoryCube, field
+from support.memcube import MemoryCube, field
 
 GEOD = Geod(ellps="WGS84")
 

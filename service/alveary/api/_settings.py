@@ -16,7 +16,6 @@ The TOML file::
 
 from __future__ import annotations
 
-import os
 import re
 import tomllib
 from pathlib import Path
@@ -35,7 +34,9 @@ _ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
 def default_store() -> Path:
     """The embedded local store: ``$ALVEARY_STORE`` or ``var/cubes`` under the working dir."""
-    return Path(os.environ.get("ALVEARY_STORE") or "var/cubes")
+    from alveary.cube import default_store_root
+
+    return Path(default_store_root())
 
 
 class CubeConfig(BaseModel):
@@ -159,4 +160,4 @@ def scan_store(root: Path) -> list[CubeSource]:
 
 
 def _looks_like_cube(path: Path) -> bool:
-    return any((path / marker).exists() for marker in ("zarr.json", ".zgroup", "current"))
+    return (path / "current.json").is_file()  # the published-version pointer of a cube

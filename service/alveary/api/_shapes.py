@@ -75,7 +75,7 @@ def zone_geometries(zones: np.ndarray) -> list[dict[str, Any]]:
     zones = np.asarray(zones, dtype=np.uint64).reshape(-1)
     if zones.size == 0:
         return []
-    corners = grid.zone_boundary(zones)  # (N, 6, 2) lat, lon
+    corners = grid.zone_boundary(zones, face_edges=True)  # (N, m, 2) lat, lon, NaN-padded
     lat, lon = corners[..., 0], corners[..., 1]
     valid = ~np.isnan(lat)
     with np.errstate(invalid="ignore"):

@@ -144,7 +144,8 @@ class Plan:
 
     ``zones`` are the rows of the answer (they may repeat for multi-point queries);
     ``read_zones`` the distinct zones read; ``take`` maps rows to ``read_zones``;
-    ``chunks`` variable -> chunk keys; ``max_bytes`` the most that will be read.
+    ``chunks`` variable -> chunk keys; ``max_bytes`` the most that will be read;
+    ``reads`` variable -> the cube's own read plan, which the executor runs as it is.
     """
 
     resolved: Resolved
@@ -155,6 +156,7 @@ class Plan:
     chunks: dict[str, list[Any]]
     max_bytes: int
     stats: tuple[str, ...] = ()
+    reads: dict[str, Any] = field(default_factory=dict, repr=False)
 
     @property
     def chunk_count(self) -> int:
@@ -232,25 +234,21 @@ def make_plan(resolved: Resolved, limits: Limits) -> Plan:
     steps = resolved.t1 - resolved.t0
     _check("time steps × zones", steps * int(read_zones.size), limits.max_cells)
     chunks: dict[str, list[Any]] = {}
+    reads: dict[str, Any] = {}
     total = 0
     if steps and read_zones.size:
         times = resolved.times
         start, end = times[0], times[-1]
-        sorted_zones = np.sort(read_zones)
         for var in resolved.variables:
-            keys, nbytes = _chunk_plan(resolved.cube.plan(var, sorted_zones, start, end))
+            reads[var] = resolved.cube.plan(var, read_zones, start, end)
+            keys, nbytes = _chunk_plan(reads[var])
             chunks[var] = keys
             total += nbytes
     _check("bytes read per request", total, limits.max_read_bytes)
     stats = getattr(resolved.query, "stats", ())
-    return Plan(resolved, zones, read_zones, take, extra, chunks, total, stats)
+    return Plan(resolved, zones, read_zones, take, extra, chunks, total, stats, reads)
 
 
 def _chunk_plan(plan: Any) -> tuple[list[Any], int]:
-    """Read the cube's plan object: (chunk keys, max bytes), whatever its exact shape."""
-    if isinstance(plan, tuple) and len(plan) == 2:
-        keys, nbytes = plan
-    else:
-        keys = getattr(plan, "keys", None) or getattr(plan, "chunks", None) or []
-        nbytes = getattr(plan, "max_bytes", None) or getattr(plan, "nbytes", 0)
-    return list(keys), int(nbytes)
+    """(chunk keys, max bytes) of a cube read plan."""
+    return list(plan.keys), int(plan.max_bytes)
