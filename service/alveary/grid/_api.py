@@ -6,10 +6,10 @@ import numpy as np
 
 from alveary._errors import GridError
 from alveary.grid import _geojson, _hierarchy, _ids, _lattice, _regions
-from alveary.grid._authalic import EARTH_AREA, authalic_to_geodetic, geodetic_to_authalic
+from alveary.grid._authalic import EARTH_AREA, authalic_to_geodetic, geodetic_to_xyz
 from alveary.grid._disk import disk as _disk
 from alveary.grid._ids import MAX_LEVEL, check_level
-from alveary.grid._snyder import lonlat_to_xyz, xyz_to_lonlat
+from alveary.grid._snyder import xyz_to_lonlat
 
 _ALL_ZONES_MAX = 10
 
@@ -89,8 +89,13 @@ def point_to_zone(lat, lon, level: int) -> np.ndarray:
     """
     level = check_level(level)
     la, lo = _latlon(lat, lon)
-    xyz = lonlat_to_xyz(geodetic_to_authalic(la), lo)
-    return _lattice.xyz_to_ids(xyz, level)
+    shape = la.shape
+    la, lo = la.reshape(-1), lo.reshape(-1)
+    out = np.empty(la.shape, dtype=np.uint64)
+    for s in range(0, la.size, _lattice.BLOCK):  # blocks that stay in cache
+        block = slice(s, s + _lattice.BLOCK)
+        out[block] = _lattice.xyz_to_ids(geodetic_to_xyz(la[block], lo[block]), level)
+    return out.reshape(shape) if shape else out[0]
 
 
 def zone_to_point(zones) -> tuple[np.ndarray, np.ndarray]:

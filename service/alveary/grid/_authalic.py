@@ -65,3 +65,11 @@ def authalic_to_geodetic(beta: np.ndarray) -> np.ndarray:
             step = (target - _q(s)) * w * w / (2.0 * (1.0 - _E2) * c)
         phi = np.where(np.abs(c) > 1e-12, phi + step, phi)
     return np.clip(np.degrees(phi), -90.0, 90.0)
+
+
+def geodetic_to_xyz(lat: np.ndarray, lon: np.ndarray) -> np.ndarray:
+    """Unit vectors (..., 3) on the authalic sphere of geodetic (lat, lon) in degrees."""
+    sin_beta = np.clip(_q(np.sin(np.radians(lat))) / _QP, -1.0, 1.0)
+    cos_beta = np.sqrt(1.0 - sin_beta * sin_beta)
+    lo = np.radians(lon)
+    return np.stack([cos_beta * np.cos(lo), cos_beta * np.sin(lo), sin_beta], axis=-1)

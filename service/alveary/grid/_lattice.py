@@ -13,7 +13,7 @@ import numpy as np
 
 from alveary.grid import _ids
 from alveary.grid._icosahedron import AXIAL_TO_CART, FACE_LATTICE, VERTICES
-from alveary.grid._snyder import CIRCUMRADIUS, face_of, forward, inverse
+from alveary.grid._snyder import _ROT, CIRCUMRADIUS, face_of, forward_sector, inverse
 
 NORTH, SOUTH = _ids.NORTH, _ids.SOUTH
 
@@ -42,6 +42,8 @@ def _chart_maps() -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 _TO_ST, _TO_XY, _OFFSET = _chart_maps()
+# Plane -> chart maps composed with the 120° sector rotations: index 3 * face + sector.
+_TO_ST_SECTOR = np.einsum("fij,sjk->fsik", _TO_ST, _ROT).reshape(60, 2, 2)
 
 
 def canonical(strip, a, b, n):
@@ -131,10 +133,12 @@ def chart_to_xyz(strip, s, t) -> np.ndarray:
 def xyz_to_chart(xyz: np.ndarray):
     """(strip, s, t) of unit vectors, in the chart of the strip holding their face."""
     face = face_of(xyz)
-    x, y = forward(xyz, face)
-    st = np.einsum("...ij,...j->...i", _TO_ST[face], np.stack([x, y], axis=-1))
-    st += _OFFSET[face]
-    return face // 4, st[..., 0], st[..., 1]
+    x, y, sector = forward_sector(xyz, face)
+    m = _TO_ST_SECTOR[3 * face + sector.astype(np.int64)]
+    off = _OFFSET[face]
+    s = m[..., 0, 0] * x + m[..., 0, 1] * y + off[..., 0]
+    t = m[..., 1, 0] * x + m[..., 1, 1] * y + off[..., 1]
+    return face // 4, s, t
 
 
 def hex_round(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -147,6 +151,9 @@ def hex_round(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     ra = np.where(fix_a, -rb - rc, ra)
     rb = np.where(fix_b, -ra - rc, rb)
     return ra.astype(np.int64), rb.astype(np.int64)
+
+
+BLOCK = 1 << 14  # points per block: keeps the temporaries in cache
 
 
 def xyz_to_ids(xyz: np.ndarray, level: int) -> np.ndarray:

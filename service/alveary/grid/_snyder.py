@@ -73,26 +73,45 @@ def _reduce(az: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return sector, az - sector * _SECTOR
 
 
-def forward(xyz: np.ndarray, face: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Project unit vectors onto the planes of the given faces (units of the radius)."""
+_SIN_G, _COS_G, _COS_GARC = np.sin(_G), np.cos(_G), np.cos(G_ARC)
+_TAN_G2 = _TAN_G * _TAN_G
+_RT = RPRIME * _TAN_G
+
+
+def forward_sector(xyz: np.ndarray, face: np.ndarray):
+    """Snyder's forward map within a face's 120° sector.
+
+    Returns (x, y, sector): the plane point with its azimuth reduced to [0°, 120°) from
+    the face's vertex ``sector`` (units of the radius), so that the full plane point is
+    (x, y) rotated by 120°·sector.
+    """
     c, e1, e2 = FACE_CENTERS[face], FACE_E1[face], FACE_E2[face]
     px = np.einsum("...i,...i->...", xyz, e1)
     py = np.einsum("...i,...i->...", xyz, e2)
-    pz = np.einsum("...i,...i->...", xyz, c)
-    z = np.arctan2(np.hypot(px, py), pz)  # arc from the face centre
+    half_chord = 0.5 * np.linalg.norm(xyz - c, axis=-1)  # sin(z / 2), z the arc from centre
     sector, az = _reduce(np.mod(np.arctan2(py, px), 2.0 * np.pi))
     cos_az, sin_az = np.cos(az), np.sin(az)
-    q = np.arctan2(_TAN_G, cos_az + sin_az * _COT_THETA)  # [9]
-    h = np.arccos(
-        np.clip(sin_az * np.sin(_G) * np.cos(G_ARC) - cos_az * np.cos(_G), -1.0, 1.0)
-    )  # [6]
+    dist = cos_az + sin_az * _COT_THETA  # tan(g) / tan(q), eq. [9]
+    sin_q2 = np.sqrt(0.5 * (1.0 - dist / np.sqrt(_TAN_G2 + dist * dist)))  # sin(q / 2)
+    h = np.arccos(np.clip(sin_az * _SIN_G * _COS_GARC - cos_az * _COS_G, -1.0, 1.0))  # [6]
     area = az + _G + h - np.pi  # [7], on the unit sphere
-    az_p = np.arctan2(2.0 * area, _K - 2.0 * area * _COT_THETA)  # [8]
-    d_p = RPRIME * _TAN_G / (np.cos(az_p) + np.sin(az_p) * _COT_THETA)  # [10]
-    f = d_p / (2.0 * RPRIME * np.sin(q / 2.0))  # [11]
-    rho = 2.0 * RPRIME * f * np.sin(z / 2.0)  # [12]
-    az_p = az_p + sector * _SECTOR
-    return rho * np.cos(az_p), rho * np.sin(az_p)
+    # [8]: tan Az' = u / w; [10]-[12] then reduce to rho (cos Az', sin Az') = (w, u) * scale.
+    u = 2.0 * area
+    w = _K - u * _COT_THETA
+    scale = half_chord / (_RT * sin_q2)
+    return w * scale, u * scale, sector
+
+
+_ROT = np.array(
+    [[[np.cos(a), -np.sin(a)], [np.sin(a), np.cos(a)]] for a in (0, _SECTOR, 2 * _SECTOR)]
+)
+
+
+def forward(xyz: np.ndarray, face: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Project unit vectors onto the planes of the given faces (units of the radius)."""
+    x, y, sector = forward_sector(xyz, face)
+    rot = _ROT[sector.astype(np.int64)]
+    return rot[..., 0, 0] * x + rot[..., 0, 1] * y, rot[..., 1, 0] * x + rot[..., 1, 1] * y
 
 
 def inverse(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
