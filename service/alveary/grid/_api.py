@@ -106,8 +106,15 @@ def zone_to_point(zones) -> tuple[np.ndarray, np.ndarray]:
     (58.397145, 11.25)
     """
     ids = _ids.as_zones(zones)
-    beta, lon = xyz_to_lonlat(_lattice.ids_to_xyz(ids))
-    return authalic_to_geodetic(beta), lon
+    flat = ids.reshape(-1)
+    lat, lon = np.empty(flat.shape), np.empty(flat.shape)
+    for s in range(0, flat.size, _lattice.BLOCK):  # blocks that stay in cache
+        block = slice(s, s + _lattice.BLOCK)
+        beta, lon[block] = xyz_to_lonlat(_lattice.ids_to_xyz(flat[block]))
+        lat[block] = authalic_to_geodetic(beta)
+    if ids.ndim == 0:
+        return lat[0], lon[0]
+    return lat.reshape(ids.shape), lon.reshape(ids.shape)
 
 
 def zone_level(zones) -> np.ndarray:

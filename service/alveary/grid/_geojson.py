@@ -53,7 +53,8 @@ def _unwrap(ring: np.ndarray) -> np.ndarray:
     turn = out[-1, 0] - out[0, 0]
     if abs(turn) > 1e-9:  # winds around a pole: close the ring over it
         pole = 90.0 if turn > 0 else -90.0
-        out = np.vstack([out, [[out[-1, 0], pole], [out[0, 0], pole], out[:1]]])
+        cap = np.array([[out[-1, 0], pole], [out[0, 0], pole], out[0]])
+        out = np.vstack([out, cap])
     return out
 
 

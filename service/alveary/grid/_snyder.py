@@ -74,6 +74,7 @@ def _reduce(az: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 _SIN_G, _COS_G, _COS_GARC = np.sin(_G), np.cos(_G), np.cos(G_ARC)
+_CENTERS_T, _E1_T, _E2_T = (np.ascontiguousarray(a.T) for a in (FACE_CENTERS, FACE_E1, FACE_E2))
 _TAN_G2 = _TAN_G * _TAN_G
 _RT = RPRIME * _TAN_G
 
@@ -123,7 +124,7 @@ def inverse(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     area = _K * sin_ap / (2.0 * denom)  # [8] solved for the area
     sg, cg, cG = np.sin(_G), np.cos(G_ARC), np.cos(_G)
     az = az_p.copy()
-    for _ in range(8):  # Newton on Az + G + H(Az) - pi = area [6, 7]
+    for _ in range(4):  # Newton on Az + G + H(Az) - pi = area [6, 7]; quadratic from Az'
         ca, sa = np.cos(az), np.sin(az)
         w = np.clip(sa * sg * cg - ca * cG, -1.0, 1.0)
         h = np.arccos(w)
@@ -134,9 +135,12 @@ def inverse(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     f = d_p / (2.0 * RPRIME * np.sin(q / 2.0))  # [11]
     z = 2.0 * np.arcsin(np.clip(rho / (2.0 * RPRIME * f), 0.0, 1.0))  # [12]
     az = az + sector * _SECTOR
-    c, e1, e2 = FACE_CENTERS[face], FACE_E1[face], FACE_E2[face]
-    heading = np.cos(az)[..., None] * e1 + np.sin(az)[..., None] * e2
-    return np.cos(z)[..., None] * c + np.sin(z)[..., None] * heading
+    sin_z = np.sin(z)
+    along1, along2, up = sin_z * np.cos(az), sin_z * np.sin(az), np.cos(z)
+    out = np.empty((*np.shape(az), 3))
+    for k in range(3):  # component by component: contiguous, no (N, 3) temporaries
+        out[..., k] = up * _CENTERS_T[k][face] + along1 * _E1_T[k][face] + along2 * _E2_T[k][face]
+    return out
 
 
 def project(lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
