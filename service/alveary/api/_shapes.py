@@ -7,10 +7,12 @@ holds a pole is drawn up to that pole along ±180° as one Polygon.
 
 from __future__ import annotations
 
+import itertools
 from typing import Any
 
 import numpy as np
 import shapely
+from pyproj import Geod
 from shapely.geometry import mapping
 
 from alveary import grid
@@ -26,16 +28,50 @@ def _ring_list(lon: np.ndarray, lat: np.ndarray) -> list[list[float]]:
     return pts.tolist()
 
 
+_GEOD = Geod(ellps="WGS84")
+
+
+def _crossing_lat(lon1: float, lat1: float, lon2: float, lat2: float, lon: float) -> float:
+    """Latitude where the WGS84 geodesic between two points meets meridian ``lon`` (degrees).
+
+    ``lon1`` and ``lon2`` are unwrapped (continuous), ``lon`` lies between them. Found by
+    bisection along the geodesic (pyproj.Geod), so the cut points lie on the zone's edge
+    and cutting changes neither the outline nor its geodesic area.
+    """
+    az, _, dist = _GEOD.inv(lon1, lat1, lon2, lat2)
+    lo, hi = 0.0, float(dist)
+    for _ in range(60):
+        mid = 0.5 * (lo + hi)
+        x, _, _ = _GEOD.fwd(lon1, lat1, az, mid)
+        x = lon1 + (x - lon1 + 180.0) % 360.0 - 180.0
+        if (x - lon) * (lon2 - lon1) < 0:
+            lo = mid
+        else:
+            hi = mid
+    _, y, _ = _GEOD.fwd(lon1, lat1, az, 0.5 * (lo + hi))
+    return float(y)
+
+
 def _cut(lon: np.ndarray, lat: np.ndarray) -> dict[str, Any]:
     """A ring crossing ±180° (or around a pole) as valid GeoJSON within [-180, 180]."""
     step = (np.diff(np.append(lon, lon[0])) + 180.0) % 360.0 - 180.0
-    unwrapped = lon[0] + np.concatenate([[0.0], np.cumsum(step[:-1])])
+    unwrapped = lon[0] + np.concatenate([[0.0], np.cumsum(step)])  # closed: last = first + turn
+    ring = np.column_stack([unwrapped, np.append(lat, lat[0])])
     turn = float(step.sum())
-    pts = np.column_stack([unwrapped, lat])
-    if abs(turn) > 180.0:  # the zone holds a pole: close the ring over it
+    # Put a vertex where each edge meets an odd multiple of 180°, so the cut below adds
+    # no interpolated point.
+    pts = [ring[0]]
+    for a, b in itertools.pairwise(ring):
+        lo, hi = sorted((a[0], b[0]))
+        ks = np.arange(np.ceil((lo - 180.0) / 360.0), np.floor((hi - 180.0) / 360.0) + 1)
+        cuts = [180.0 + 360.0 * k for k in ks if lo < 180.0 + 360.0 * k < hi]
+        for x in sorted(cuts, reverse=bool(b[0] < a[0])):
+            pts.append(np.array([x, _crossing_lat(a[0], a[1], b[0], b[1], x)]))
+        pts.append(b)
+    pts = np.array(pts)
+    if abs(turn) > 180.0:  # the zone holds a pole: close the ring over it along meridians
         pole = 90.0 if turn > 0 else -90.0
-        end = unwrapped[-1] + step[-1]
-        pts = np.vstack([pts, [[end, lat[0]], [end, pole], [unwrapped[0], pole]]])
+        pts = np.vstack([pts, [[pts[-1, 0], pole], [pts[0, 0], pole]], pts[:1]])
     shape = shapely.Polygon(pts)
     if not shape.is_valid:
         shape = shapely.make_valid(shape)
