@@ -36,6 +36,49 @@ spec_id = layout_id
 spec_index = layout_index
 
 
+_F = 1 / 298.257223563  # WGS84 flattening, common practice
+_E2 = _F * (2 - _F)
+_E = math.sqrt(_E2)
+_QP = 1 + (1 - _E2) / (2 * _E) * math.log((1 + _E) / (1 - _E))  # Snyder 1987, eq. 3-12
+_GL_X, _GL_W = np.polynomial.legendre.leggauss(48)
+
+
+def _dq(phi):
+    """Snyder's dq/dphi = 2 (1 - e^2) cos(phi) / (1 - e^2 sin^2 phi)^2."""
+    return 2 * (1 - _E2) * np.cos(phi) / (1 - _E2 * np.sin(phi) ** 2) ** 2
+
+
+def _q_to_pole(colat):
+    """q_p - q(phi) for colatitudes (rad) in [0, pi/2], by Gauss-Legendre quadrature."""
+    half = colat / 2
+    t = np.pi / 2 - half[..., None] * (1 + _GL_X)
+    return half * (_dq(t) @ _GL_W)
+
+
+def geodetic_to_authalic(lat_deg):
+    """Authalic latitude (degrees) without cancellation near the poles: integrate dq/dphi
+    from phi to the pole, then 1 - sin(beta) = (q_p - q) / q_p gives the colatitude as
+    2 asin(sqrt((q_p - q) / (2 q_p)))."""
+    lat = np.asarray(lat_deg, float)
+    colat = np.radians(90.0 - np.abs(lat))
+    colat_b = 2 * np.arcsin(np.sqrt(_q_to_pole(colat) / (2 * _QP)))
+    return np.sign(lat) * (90.0 - np.degrees(colat_b))
+
+
+def authalic_to_geodetic(beta_deg):
+    """Inverse of :func:`geodetic_to_authalic` by Newton steps on the colatitude."""
+    beta = np.asarray(beta_deg, float)
+    target = np.sin(np.radians(90.0 - np.abs(beta)) / 2)  # sqrt((q_p - q) / (2 q_p))
+    colat = np.radians(90.0 - np.abs(beta))
+    for _ in range(8):
+        h = np.sqrt(_q_to_pole(colat) / (2 * _QP))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            slope = _dq(np.pi / 2 - colat) / (4 * _QP * h)
+            step = np.where(h > 0, (h - target) / slope, 0.0)
+        colat = np.clip(colat - step, 0.0, np.pi / 2)
+    return np.sign(beta) * (90.0 - np.degrees(colat))
+
+
 def unit(lat_deg, lon_deg):
     """Unit vectors of (lat, lon) in degrees on a sphere."""
     lat = np.radians(np.asarray(lat_deg, dtype=float))
@@ -56,10 +99,9 @@ class ReferenceGrid:
     """Lattice bookkeeping of the contract, on top of the projection under test."""
 
     def __init__(self) -> None:
-        from alveary.grid import _authalic, _snyder
+        from alveary.grid import _snyder
 
         self.snyder = _snyder
-        self.authalic = _authalic
         self.V = np.asarray(_snyder.VERTICES, dtype=float)
         self.F = np.asarray(_snyder.FACES, dtype=np.int64)
         # Contract: vertex k of a face sits at C (cos 120k, sin 120k).
@@ -195,7 +237,7 @@ class ReferenceGrid:
 
     def plane_to_geodetic(self, f, x, y):
         beta, lon = self.snyder.unproject(f, x, y)
-        return np.asarray(self.authalic.authalic_to_geodetic(beta), float), np.asarray(lon, float)
+        return authalic_to_geodetic(beta), np.asarray(lon, float)
 
     def point_of(self, f: int, w, d: int) -> tuple[float, float]:
         """Geodetic (lat, lon) of the point with weights w/d on face f."""
@@ -243,7 +285,7 @@ class ReferenceGrid:
             vecs.append(unit(np.asarray(beta)[0], np.asarray(lon)[0]))
         vecs = np.array(vecs)
         lat_c, lon_c = self.point_of(f, w, n)
-        c = unit(self.authalic.geodetic_to_authalic(lat_c), lon_c)
+        c = unit(geodetic_to_authalic(lat_c), lon_c)
         return vecs[np.argsort(tangent_angles(c, vecs))]
 
     def children(self, zone: int) -> dict[int, float]:
@@ -261,12 +303,12 @@ class ReferenceGrid:
             out[self.owner(f, 2 * w + d, 2 * n)] = 0.5
         return out
 
-    def parent(self, zone: int) -> int:
-        """Parent by the documented rule: the central child's zone, else the smaller id."""
+    def parent_candidates(self, zone: int) -> list[int]:
+        """The zone(s) at level - 1 whose central or edge child this zone is."""
         f, w, n = self.form_of_zone(zone)
         assert n >= 2
         if (w % 2 == 0).all():
-            return self.owner(f, w // 2, n // 2)
+            return [self.owner(f, w // 2, n // 2)]
         odd = np.flatnonzero(w % 2)
         i, j = int(odd[0]), int(odd[1])
         cands = []
@@ -275,7 +317,11 @@ class ReferenceGrid:
             b[i] += si
             b[j] += sj
             cands.append(self.owner(f, b // 2, n // 2))
-        return min(cands)
+        return cands
+
+    def parent(self, zone: int) -> int:
+        """Parent by the documented rule: the central child's zone, else the smaller id."""
+        return min(self.parent_candidates(zone))
 
     # -- point to zone --------------------------------------------------------------------
 
@@ -288,7 +334,7 @@ class ReferenceGrid:
         lat = np.atleast_1d(np.asarray(lat, float))
         lon = np.atleast_1d(np.asarray(lon, float))
         n = 1 << level
-        beta = self.authalic.geodetic_to_authalic(lat)
+        beta = geodetic_to_authalic(lat)
         f, x, y = self.snyder.project(beta, lon)
         f = np.asarray(f, np.int64)
         xy1 = np.stack([np.asarray(x, float), np.asarray(y, float), np.ones(lat.size)], 1)
@@ -312,7 +358,7 @@ class ReferenceGrid:
     def vertex_geodetic(self) -> np.ndarray:
         """The 12 icosahedron vertices as geodetic (lat, lon), shape (12, 2)."""
         beta, lon = latlon(self.V)
-        return np.stack([self.authalic.authalic_to_geodetic(beta), lon], 1)
+        return np.stack([authalic_to_geodetic(beta), lon], 1)
 
     def all_lattice_ids(self, level: int) -> set[int]:
         """Owner ids of every lattice point of every face (checks ownership is a partition)."""

@@ -6,10 +6,10 @@ from __future__ import annotations
 import numpy as np
 import pyproj
 import pytest
-from grid_reference import ReferenceGrid, latlon, tangent_angles, unit
+from grid_reference import ReferenceGrid, authalic_to_geodetic, latlon, tangent_angles, unit
 
 from alveary import GridError, grid
-from alveary.grid import _authalic, _snyder
+from alveary.grid import _snyder
 from support.samples import WGS84_AREA_M2, layout_id, pentagons
 
 GEOD = pyproj.Geod(ellps="WGS84")
@@ -175,7 +175,7 @@ def true_pentagon_outline(ref: ReferenceGrid, zone: int, per_side: int = 16) -> 
     beta, lon = _snyder.unproject(np.array([g for g, _ in pieces]), xy[:, 0], xy[:, 1])
     centre = unit(*latlon(ref.V[v]))
     order = np.argsort(tangent_angles(centre, unit(beta, lon)))
-    return np.stack([_authalic.authalic_to_geodetic(beta[order]), lon[order]], 1)
+    return np.stack([authalic_to_geodetic(beta[order]), lon[order]], 1)
 
 
 @pytest.mark.parametrize("level", [8, 12, 16])
