@@ -29,13 +29,13 @@ def rain(lat, lon, days):
     return np.where(np.asarray(lat) < 44.8, np.nan, value)
 
 
-def build_cube(url, storage_options, cube_id="analytic", offset=0.0):
+def build_cube(url, storage_options, cube_id="analytic", offset=0.0, levels=LEVELS):
     writer = create_cube(
         url,
         cube_id=cube_id,
         title="Analytic test field",
         times=TIMES,
-        levels=list(LEVELS),
+        levels=list(levels),
         variables={
             "temp": {"units": "K", "long_name": "analytic temperature", "dtype": "float64"},
             "rain": {"units": "mm", "long_name": "analytic rain with gaps", "dtype": "float64"},
@@ -43,7 +43,7 @@ def build_cube(url, storage_options, cube_id="analytic", offset=0.0):
         storage_options=storage_options,
     )
     days = np.arange(NTIMES, dtype=np.float64)[:, None]
-    for level in LEVELS:
+    for level in levels:
         zones = grid.all_zones(level)
         lat, lon = grid.zone_to_point(zones)
         writer.write("temp", level, zones, field(lat[None, :], lon[None, :], days) + offset)

@@ -14,7 +14,8 @@ from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
 from typing import Any
 
-from alveary._errors import AlvearyError, NotFound, StoreUnavailable
+from alveary._errors import NotFound, StoreUnavailable
+from alveary.query._failures import as_domain_error
 
 __all__ = ["Catalog", "CubeSource"]
 
@@ -87,11 +88,8 @@ class Catalog:
     def _open(self, entry: _Entry) -> None:
         try:
             cube = self._opener(entry.source.url, entry.source.storage_options)
-        except AlvearyError as exc:
-            entry.error = type(exc).__name__
-            log.warning("cube %s could not be opened: %s", entry.source.id, exc)
-        except OSError as exc:
-            entry.error = type(exc).__name__
+        except Exception as exc:
+            entry.error = type(as_domain_error(exc, "cube metadata")).__name__
             log.warning("cube %s could not be opened: %s", entry.source.id, exc)
         else:
             entry.cube, entry.error = cube, None
@@ -143,8 +141,8 @@ class Catalog:
                 try:
                     out[cube_id] = bool(entry.cube.refresh())
                     entry.error = None
-                except (AlvearyError, OSError) as exc:
-                    entry.error = type(exc).__name__
+                except Exception as exc:
+                    entry.error = type(as_domain_error(exc, "the version pointer")).__name__
                     out[cube_id] = None
                     log.warning("cube %s could not be refreshed: %s", cube_id, exc)
                 entry.checked = time.monotonic()

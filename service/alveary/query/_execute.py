@@ -14,6 +14,7 @@ import numpy as np
 
 from alveary import grid
 from alveary._errors import DeadlineExceeded
+from alveary.query._failures import as_domain_error
 from alveary.query._plan import Plan
 from alveary.query._result import StatsResult, ZoneResult
 from alveary.query._stats import zone_statistics
@@ -49,10 +50,13 @@ async def _read_all(plan: Plan, cache: Any) -> dict[str, np.ndarray]:
     same = hasattr(cube, "execute_async") and str(cube.version) == r.version
 
     async def one(var: str) -> np.ndarray:
-        if same and var in plan.reads:
-            out = await cube.execute_async(plan.reads[var], cache)
-        else:
-            out = await cube.read_async(var, plan.read_zones, start, end, cache=cache)
+        try:
+            if same and var in plan.reads:
+                out = await cube.execute_async(plan.reads[var], cache)
+            else:
+                out = await cube.read_async(var, plan.read_zones, start, end, cache=cache)
+        except Exception as exc:
+            raise as_domain_error(exc, f"chunks of {var!r}") from exc
         return np.asarray(out, dtype=np.float64).reshape(steps, n)
 
     arrays = await asyncio.gather(*(one(v) for v in r.variables))
