@@ -38,6 +38,11 @@ GEOD = Geod(ellps="WGS84")
 
 
 @pytest.fixture
+def memory_cube():
+    return MemoryCube()
+
+
+@pytest.fixture
 def cat(memory_cube):
     c = Catalog([CubeSource("mem", "memory://mem")], opener=lambda url, opts: memory_cube)
     c.open_all()
