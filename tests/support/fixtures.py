@@ -1,3 +1,36 @@
 """Pytest fixtures shared by every test directory (re-exported by tests/conftest.py)."""
 
 from __future__ import annotations
+
+import pytest
+
+from support.s3 import S3Server
+
+
+@pytest.fixture(scope="session")
+def s3_server():
+    """A real S3-protocol server (moto_server) on 127.0.0.1, for the whole session.
+
+    ``s3_server.mark()`` / ``s3_server.requests(since=mark)`` give the requests it
+    logged; ``s3_server.create_bucket()`` makes a fresh bucket.
+    """
+    server = S3Server().start()
+    try:
+        yield server
+    finally:
+        server.stop()
+
+
+@pytest.fixture(scope="session")
+def s3_storage_options(s3_server):
+    """``storage_options`` for s3fs pointing at :func:`s3_server` (endpoint, keys)."""
+    return s3_server.storage_options()
+
+
+@pytest.fixture
+def s3_bucket(s3_server):
+    """A fresh, empty bucket on :func:`s3_server`, as the URL ``s3://<name>``."""
+    return "s3://" + s3_server.create_bucket()
+
+
+from support.service_fixtures import *  # noqa: E402, F403  (HTTP service fixtures)

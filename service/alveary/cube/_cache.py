@@ -1,0 +1,160 @@
+"""A byte-bounded LRU of decoded chunks, and the I/O counters of cube reads."""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Hashable
+
+import numpy as np
+
+from alveary._errors import InvalidInput
+
+__all__ = ["ChunkCache", "IOStats", "io_totals"]
+
+
+class ChunkCache:
+    """A least-recently-used cache of decoded chunks, bounded in bytes.
+
+    One cache can be shared by many cubes and threads: keys carry the cube url, the
+    published version and the chunk key, so a new version never hits an old entry.
+    A chunk larger than ``max_bytes`` is not cached.
+
+    Attributes
+    ----------
+    hits, misses, evictions:
+        Counters since creation.
+    bytes:
+        Bytes currently held (sum of ``ndarray.nbytes``).
+
+    Examples
+    --------
+    >>> cache = ChunkCache(max_bytes=100)
+    >>> cache.put(("u", "v1", "sm/6/strips", (0, 0, 0, 0)), np.zeros(10))
+    >>> cache.get(("u", "v1", "sm/6/strips", (0, 0, 0, 0))).shape
+    (10,)
+    >>> cache.get(("u", "v2", "sm/6/strips", (0, 0, 0, 0))) is None
+    True
+    >>> cache.hits, cache.misses, cache.bytes
+    (1, 1, 80)
+    """
+
+    def __init__(self, max_bytes: int) -> None:
+        if not isinstance(max_bytes, int | np.integer) or max_bytes < 0:
+            raise InvalidInput("max_bytes", max_bytes, "an integer >= 0")
+        self.max_bytes = int(max_bytes)
+        self._items: OrderedDict[Hashable, np.ndarray] = OrderedDict()
+        self._lock = threading.Lock()
+        self.hits = 0
+        self.misses = 0
+        self.evictions = 0
+        self.bytes = 0
+
+    def __len__(self) -> int:
+        return len(self._items)
+
+    def get(self, key: Hashable) -> np.ndarray | None:
+        """The cached chunk, or None (counted as a hit or a miss)."""
+        with self._lock:
+            value = self._items.get(key)
+            if value is None:
+                self.misses += 1
+                return None
+            self._items.move_to_end(key)
+            self.hits += 1
+            return value
+
+    def put(self, key: Hashable, value: np.ndarray) -> None:
+        """Store a chunk (made read-only), evicting the least recently used ones."""
+        size = int(value.nbytes)
+        if size > self.max_bytes:
+            return
+        value.setflags(write=False)
+        with self._lock:
+            old = self._items.pop(key, None)
+            if old is not None:
+                self.bytes -= int(old.nbytes)
+            self._items[key] = value
+            self.bytes += size
+            while self.bytes > self.max_bytes and self._items:
+                _, dropped = self._items.popitem(last=False)
+                self.bytes -= int(dropped.nbytes)
+                self.evictions += 1
+
+    def clear(self) -> None:
+        """Drop every entry (counters are kept)."""
+        with self._lock:
+            self._items.clear()
+            self.bytes = 0
+
+    def stats(self) -> dict[str, int]:
+        """Counters as a dict: hits, misses, evictions, bytes, items, max_bytes."""
+        with self._lock:
+            return {
+                "hits": self.hits,
+                "misses": self.misses,
+                "evictions": self.evictions,
+                "bytes": self.bytes,
+                "items": len(self._items),
+                "max_bytes": self.max_bytes,
+            }
+
+
+class IOStats:
+    """Counters of store requests made while reading cubes.
+
+    Attributes
+    ----------
+    requests:
+        Every GET sent to the store (metadata, version pointer and chunks).
+    chunk_gets:
+        GETs of chunk objects.
+    chunks_missing:
+        Chunk GETs that found no object (an unwritten, all-no-data chunk).
+    bytes_read:
+        Bytes received (encoded, as stored).
+
+    Examples
+    --------
+    >>> s = IOStats()
+    >>> s.add(key="sm/6/strips/c/0/0/0/0", nbytes=120)
+    >>> s.snapshot()
+    {'requests': 1, 'chunk_gets': 1, 'chunks_missing': 0, 'bytes_read': 120}
+    """
+
+    __slots__ = ("_lock", "bytes_read", "chunk_gets", "chunks_missing", "requests")
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self.requests = 0
+        self.chunk_gets = 0
+        self.chunks_missing = 0
+        self.bytes_read = 0
+
+    def add(self, key: str, nbytes: int | None) -> None:
+        """Count one GET of ``key`` that returned ``nbytes`` (None: no such object)."""
+        is_chunk = "/c/" in key
+        with self._lock:
+            self.requests += 1
+            if is_chunk:
+                self.chunk_gets += 1
+                if nbytes is None:
+                    self.chunks_missing += 1
+            if nbytes:
+                self.bytes_read += int(nbytes)
+
+    def snapshot(self) -> dict[str, int]:
+        with self._lock:
+            return {
+                "requests": self.requests,
+                "chunk_gets": self.chunk_gets,
+                "chunks_missing": self.chunks_missing,
+                "bytes_read": self.bytes_read,
+            }
+
+    def __repr__(self) -> str:
+        return f"IOStats({self.snapshot()})"
+
+
+#: Totals over every cube opened in this process (what ``/metrics`` can export).
+io_totals = IOStats()
