@@ -108,7 +108,7 @@ class IOStats:
     requests:
         Every GET sent to the store (metadata, version pointer and chunks).
     chunk_gets:
-        GETs of chunk objects.
+        GETs of data chunks (strip and apex arrays; not the time axis).
     chunks_missing:
         Chunk GETs that found no object (an unwritten, all-no-data chunk).
     bytes_read:
@@ -133,7 +133,7 @@ class IOStats:
 
     def add(self, key: str, nbytes: int | None) -> None:
         """Count one GET of ``key`` that returned ``nbytes`` (None: no such object)."""
-        is_chunk = "/c/" in key
+        is_chunk = "/strips/c/" in key or "/apex/c/" in key
         with self._lock:
             self.requests += 1
             if is_chunk:
