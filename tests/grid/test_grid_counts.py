@@ -190,3 +190,23 @@ def test_area_of_pentagons_is_five_sixths(level):
         assert ring.shape == (5, 2)
         outline = true_pentagon_outline(ref, zone)
         assert geodesic_area(outline) == pytest.approx(grid.zone_area(level) * 5 / 6, rel=1e-3)
+
+
+def test_children_weights_share_out_the_geodesic_area():
+    # design notes: central child weight 1, edge children 1/2; measured with pyproj.Geod on
+    # the children's boundaries, the weighted sum is the parent's geodesic area (hexagons)
+    rng = np.random.default_rng(9)
+    for level in (8, 11, 15):
+        lat = np.degrees(np.arcsin(rng.uniform(-1, 1, 20)))
+        lon = rng.uniform(-180, 180, 20)
+        for zone in grid.point_to_zone(lat, lon, level):
+            if grid.is_pentagon(zone):
+                continue
+            ids, weights = grid.zone_children(zone)
+            kids = sum(
+                w * geodesic_area(np.asarray(grid.zone_boundary(c)))
+                for c, w in zip(ids, weights, strict=True)
+            )
+            assert kids == pytest.approx(
+                geodesic_area(np.asarray(grid.zone_boundary(zone))), rel=1e-3
+            )
