@@ -190,6 +190,9 @@ def test_area_of_pentagons_is_five_sixths(level):
         assert ring.shape == (5, 2)
         outline = true_pentagon_outline(ref, zone)
         assert geodesic_area(outline) == pytest.approx(grid.zone_area(level) * 5 / 6, rel=1e-3)
+        # the library's own true outline (corners plus face-edge crossings) measures the same
+        exact = np.asarray(grid.zone_boundary(np.uint64(zone), face_edges=True))
+        assert geodesic_area(exact) == pytest.approx(grid.zone_area(level) * 5 / 6, rel=1e-3)
 
 
 def test_children_weights_share_out_the_geodesic_area():
@@ -210,3 +213,20 @@ def test_children_weights_share_out_the_geodesic_area():
             assert kids == pytest.approx(
                 geodesic_area(np.asarray(grid.zone_boundary(zone))), rel=1e-3
             )
+
+
+def test_true_outlines_of_zones_on_face_edges():
+    # zones whose centres lie on a face edge bend there; their true outlines
+    # (face_edges=True) measure zone_area with pyproj.Geod, and all of them tile the globe
+    level = 9
+    ref = ReferenceGrid()
+    zones = []
+    for f in (0, 5, 11):
+        for a in range(1, 1 << level, 97):
+            zones.append(ref.owner(f, [a, (1 << level) - a, 0], 1 << level))
+    for zone in zones:
+        ring = np.asarray(grid.zone_boundary(np.uint64(zone), face_edges=True))
+        assert geodesic_area(ring) == pytest.approx(grid.zone_area(level), rel=1e-3)
+    rings = grid.zone_boundary(grid.all_zones(3), face_edges=True)
+    total = sum(geodesic_area(r[~np.isnan(r[:, 0])]) for r in rings)
+    assert total == pytest.approx(WGS84_AREA_M2, rel=1e-9)

@@ -158,6 +158,12 @@ def test_neighbours_on_strip_and_face_edges(zone):
     check_neighbors(reference(), zone)
 
 
+@pytest.mark.parametrize("level", [0, 1, 2, 3])
+def test_neighbours_of_every_zone_at_coarse_levels(ref, level):
+    for zone in grid.all_zones(level).tolist():
+        check_neighbors(ref, zone)
+
+
 @pytest.mark.parametrize("level", [1, 2, 3, 6, 15, 24])
 def test_neighbours_at_every_kind_of_place(ref, level):
     for _name, zs in place_samples(level).items():
@@ -220,7 +226,7 @@ def test_disks_are_breadth_first_searches(zone, k):
     check_disk(zone, k)
 
 
-@pytest.mark.parametrize("level", [2, 4, 12])
+@pytest.mark.parametrize("level", [0, 2, 4, 12])
 def test_disks_at_every_kind_of_place(level):
     for zs in place_samples(level).values():
         for zone in zs[:2]:
