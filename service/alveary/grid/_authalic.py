@@ -2,7 +2,13 @@
 
 The authalic sphere has the surface area of the WGS84 ellipsoid; mapping geodetic latitude
 to authalic latitude (longitude unchanged) is an equal-area map from the ellipsoid onto it
-(Snyder, *Map Projections: A Working Manual*, 1987, eqs. 3-11 to 3-18).
+(Snyder, *Map Projections: A Working Manual*, 1987, eqs. 3-11 to 3-12).
+
+Everything is computed from the pole, so that nothing cancels near it: with
+u = 1 - sin|phi| (= 2 sin^2 of half the colatitude, exact), the gap q_p - q(phi) is
+2 (1 - e^2) times the integral of (1 - e^2 x^2)^-2 over [1 - u, 1], whose integrand is
+smooth and nearly constant, so an 8-point Gauss-Legendre rule gives it to full precision.
+Then sin|beta| = 1 - gap / q_p, again with the colatitude taken straight from the gap.
 """
 
 from __future__ import annotations
@@ -15,14 +21,18 @@ WGS84_F = 1.0 / 298.257223563
 _E2 = WGS84_F * (2.0 - WGS84_F)
 _E = np.sqrt(_E2)
 
-
-def _q(sin_phi: np.ndarray) -> np.ndarray:
-    """Snyder's q(phi), eq. 3-12."""
-    es = _E * sin_phi
-    return (1.0 - _E2) * (sin_phi / (1.0 - es * es) - np.log((1.0 - es) / (1.0 + es)) / (2.0 * _E))
+_NODES, _WEIGHTS = np.polynomial.legendre.leggauss(8)
 
 
-_QP = float(_q(np.float64(1.0)))
+def _gap(u: np.ndarray) -> np.ndarray:
+    """q_p - q(phi) as a function of u = 1 - sin|phi| (Snyder's q, eq. 3-12)."""
+    u = np.asarray(u, dtype=np.float64)
+    x = 1.0 - 0.5 * u[..., None] * (1.0 - _NODES)  # nodes mapped onto [1 - u, 1]
+    w = 1.0 - _E2 * x * x
+    return (1.0 - _E2) * u * np.sum(_WEIGHTS / (w * w), axis=-1)
+
+
+_QP = float(_gap(np.float64(2.0)) / 2.0)  # q_p: half the gap from pole to pole
 
 #: Radius of the sphere with the WGS84 ellipsoid's surface area, metres.
 R_AUTHALIC = WGS84_A * np.sqrt(_QP / 2.0)
@@ -30,10 +40,15 @@ R_AUTHALIC = WGS84_A * np.sqrt(_QP / 2.0)
 #: Surface area of the WGS84 ellipsoid, square metres.
 EARTH_AREA = 4.0 * np.pi * R_AUTHALIC**2
 
-# Series for the inverse (Snyder 1987, eq. 3-18), refined by Newton steps below.
-_C2 = _E2 / 3.0 + 31.0 * _E2**2 / 180.0 + 517.0 * _E2**3 / 5040.0
-_C4 = 23.0 * _E2**2 / 360.0 + 251.0 * _E2**3 / 3780.0
-_C6 = 761.0 * _E2**3 / 45360.0
+
+def _half_colat(lat_deg: np.ndarray) -> np.ndarray:
+    return np.radians(90.0 - np.abs(np.asarray(lat_deg, dtype=np.float64))) / 2.0
+
+
+def _beta_half_colat(lat: np.ndarray) -> np.ndarray:
+    """Half the authalic colatitude of |lat| (radians)."""
+    u = 2.0 * np.sin(_half_colat(lat)) ** 2
+    return np.arcsin(np.sqrt(np.clip(_gap(u) / (2.0 * _QP), 0.0, 1.0)))
 
 
 def geodetic_to_authalic(lat: np.ndarray) -> np.ndarray:
@@ -41,35 +56,35 @@ def geodetic_to_authalic(lat: np.ndarray) -> np.ndarray:
 
     >>> float(geodetic_to_authalic(45.0))  # doctest: +ELLIPSIS
     44.87170...
+    >>> float(geodetic_to_authalic(-90.0))
+    -90.0
     """
-    phi = np.radians(np.asarray(lat, dtype=np.float64))
-    ratio = np.clip(_q(np.sin(phi)) / _QP, -1.0, 1.0)
-    return np.degrees(np.arcsin(ratio))
+    lat = np.asarray(lat, dtype=np.float64)
+    return np.copysign(90.0 - np.degrees(2.0 * _beta_half_colat(lat)), lat)
 
 
 def authalic_to_geodetic(beta: np.ndarray) -> np.ndarray:
     """Geodetic latitude (degrees) of an authalic latitude (degrees), to full precision.
 
+    Newton's method on u = 1 - sin|phi|, where the gap's derivative is never small.
+
     >>> float(authalic_to_geodetic(geodetic_to_authalic(45.0)))  # doctest: +ELLIPSIS
     45.0000000...
     """
-    b = np.radians(np.asarray(beta, dtype=np.float64))
-    phi = b + _C2 * np.sin(2 * b) + _C4 * np.sin(4 * b) + _C6 * np.sin(6 * b)
-    target = np.sin(b) * _QP
-    # Newton on q(phi) = target; dq/dphi = 2 (1 - e^2) cos(phi) / (1 - e^2 sin^2 phi)^2.
-    for _ in range(2):
-        s = np.sin(phi)
-        c = np.cos(phi)
-        w = 1.0 - _E2 * s * s
-        with np.errstate(divide="ignore", invalid="ignore"):
-            step = (target - _q(s)) * w * w / (2.0 * (1.0 - _E2) * c)
-        phi = np.where(np.abs(c) > 1e-12, phi + step, phi)
-    return np.clip(np.degrees(phi), -90.0, 90.0)
+    beta = np.asarray(beta, dtype=np.float64)
+    target = 2.0 * _QP * np.sin(_half_colat(beta)) ** 2  # the gap q_p - q we need
+    u = target * (1.0 - _E2) / 2.0  # exact slope at the pole
+    for _ in range(4):
+        w = 1.0 - _E2 * (1.0 - u) ** 2
+        u = np.clip(u - (_gap(u) - target) * w * w / (2.0 * (1.0 - _E2)), 0.0, 1.0)
+    colat = 2.0 * np.arcsin(np.sqrt(u / 2.0))
+    return np.copysign(90.0 - np.degrees(colat), beta)
 
 
 def geodetic_to_xyz(lat: np.ndarray, lon: np.ndarray) -> np.ndarray:
     """Unit vectors (..., 3) on the authalic sphere of geodetic (lat, lon) in degrees."""
-    sin_beta = np.clip(_q(np.sin(np.radians(lat))) / _QP, -1.0, 1.0)
-    cos_beta = np.sqrt(1.0 - sin_beta * sin_beta)
+    half = _beta_half_colat(lat)
+    cos_beta = np.sin(2.0 * half)
+    sin_beta = np.copysign(np.cos(2.0 * half), lat)
     lo = np.radians(lon)
     return np.stack([cos_beta * np.cos(lo), cos_beta * np.sin(lo), sin_beta], axis=-1)

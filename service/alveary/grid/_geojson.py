@@ -45,9 +45,13 @@ def _ring(coords, where: str) -> np.ndarray:
 
 def _unwrap(ring: np.ndarray) -> np.ndarray:
     lon = ring[:, 0].copy()
-    lon[0] = (lon[0] + 180.0) % 360.0 - 180.0
+    if abs(lon[0]) > 180.0:
+        lon[0] = (lon[0] + 180.0) % 360.0 - 180.0
     d = np.diff(ring[:, 0])
-    d = (d + 180.0) % 360.0 - 180.0
+    # A step of more than 180° (but not a full 360°, which is an edge along a pole or a
+    # side of a world-wide rectangle) crosses the antimeridian the short way.
+    jump = (np.abs(d) > 180.0) & (np.abs(d) < 360.0)
+    d = np.where(jump, (d + 180.0) % 360.0 - 180.0, d)
     lon[1:] = lon[0] + np.cumsum(d)
     out = np.stack([lon, ring[:, 1]], axis=1)
     turn = out[-1, 0] - out[0, 0]

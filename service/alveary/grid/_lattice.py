@@ -184,16 +184,34 @@ def _drop_repeats(ids: np.ndarray) -> np.ndarray:
     return out
 
 
+# The apexes' neighbours, counter-clockwise: row 0, column 0 of every strip around P
+# (strips in decreasing order) and the last row and column of every strip around Q.
+_NORTH_RING = np.array([0, 4, 3, 2, 1])
+_SOUTH_RING = np.array([0, 1, 2, 3, 4])
+
+
 def neighbors(ids: np.ndarray) -> np.ndarray:
     """(N, 6) neighbour ids counter-clockwise; pentagons have 0 in the last column."""
     level, strip, a, b = ids_to_chart(ids)
+    region = _ids.decode(ids)[1]
     out = np.empty((*ids.shape, 6), dtype=np.uint64)
     for lv in np.unique(level):
         sel = level == lv
         na = a[sel][:, None] + OFFSETS[:, 0]
         nb = b[sel][:, None] + OFFSETS[:, 1]
         out[sel] = chart_to_ids(int(lv), strip[sel][:, None], na, nb)
-    return _drop_repeats(out)
+    out = _drop_repeats(out)
+    # Read the apexes' rings off the layout: at level 0 a chart step from an apex can
+    # land on a strip corner from which the seam rules are ambiguous.
+    for apex, ring in ((NORTH, _NORTH_RING), (SOUTH, _SOUTH_RING)):
+        sel = region == apex
+        if sel.any():
+            n = np.left_shift(1, level[sel])[:, None]
+            i = np.zeros_like(n) if apex == NORTH else 2 * n - 1
+            j = np.zeros_like(n) if apex == NORTH else n - 1
+            out[sel, :5] = _ids.encode(level[sel][:, None], ring[None, :], i, j)
+            out[sel, 5] = 0
+    return out
 
 
 def boundaries(ids: np.ndarray) -> np.ndarray:
