@@ -1,0 +1,308 @@
+"""Benchmarks of the HTTP service: ratios measured in one run on this machine.
+
+A cube (levels 7 and 9, 365 daily steps over a 50° x 40° region) is written to the
+S3-protocol test server (moto_server on 127.0.0.1) and served by a real ``alveary serve``
+process on 127.0.0.1. Measured:
+
+1. warm point queries per second against the same server's /healthz (wrk on loopback;
+   skipped with a message if wrk is absent), and p99 / p50 latency;
+2. cold queries: chunk GETs the S3 server logged against the plan's minimal cover
+   (point, disk k = 10, a 10 000-zone polygon, a one-year series);
+3. a 100 000-zone polygon answer: Arrow against JSON, time and bytes;
+4. server RSS after 100 000 mixed requests against the configured cache size.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+import statistics
+import subprocess
+import tempfile
+import time
+from pathlib import Path
+
+import httpx
+import numpy as np
+
+from alveary import grid
+from alveary.cube import create_cube, open_cube
+from alveary.query import (
+    Catalog,
+    CubeSource,
+    DiskQuery,
+    Limits,
+    PointQuery,
+    PolygonQuery,
+    Selection,
+    make_plan,
+    parse_datetime,
+    parse_polygon,
+    resolve,
+)
+from support.s3 import S3Server
+from support.server import ServiceProcess
+
+REGION = (0.0, 10.0, 90.0, 70.0)  # west, south, east, north
+LEVELS = (7, 9)
+NTIMES = 365
+CACHE_BYTES = 64 * 2**20
+RNG = np.random.default_rng(20240501)
+
+
+def build(url: str, options: dict) -> float:
+    start = time.perf_counter()
+    times = np.datetime64("2023-01-01T00:00:00", "s") + np.arange(NTIMES) * np.timedelta64(1, "D")
+    writer = create_cube(
+        url,
+        cube_id="bench",
+        title="Benchmark field (invented)",
+        times=times,
+        levels=list(LEVELS),
+        variables={"temp": {"units": "K", "long_name": "invented temperature"}},
+        coverage=REGION,
+        storage_options=options,
+    )
+    days = np.arange(NTIMES, dtype=np.float64)[:, None]
+    for level in LEVELS:
+        zones = grid.zones_in_bbox(*REGION, level)
+        lat, _ = grid.zone_to_point(zones)
+        for i in range(0, zones.size, 200_000):
+            sl = slice(i, i + 200_000)
+            values = 280 + 10 * np.cos(np.radians(lat[sl]))[None, :] + 5 * np.sin(days / 58.0)
+            writer.write("temp", level, zones[sl], values.astype(np.float32))
+    writer.publish()
+    return time.perf_counter() - start
+
+
+def square(lon0: float, lat0: float, half: float) -> dict:
+    w, e, s, n = lon0 - half, lon0 + half, lat0 - half * 0.7, lat0 + half * 0.7
+    return {"type": "Polygon", "coordinates": [[[w, s], [e, s], [e, n], [w, n], [w, s]]]}
+
+
+def sized_square(lon0: float, lat0: float, zones: int, level: int) -> dict:
+    """A square polygon holding about ``zones`` zones at ``level``."""
+    half = 0.5
+    for _ in range(40):
+        count = grid.zones_in_polygon(square(lon0, lat0, half), level).size
+        half = min(half * (zones / max(count, 1)) ** 0.5, 25.0)
+        if abs(count - zones) < zones * 0.01:
+            break
+    return square(lon0, lat0, half)
+
+
+def wrk(url: str, seconds: int = 8, connections: int = 32, script: Path | None = None, env=None):
+    args = ["wrk", "-t2", f"-c{connections}", f"-d{seconds}s", "--latency"]
+    if script is not None:
+        args += ["-s", str(script)]
+    out = subprocess.run([*args, url], capture_output=True, text=True, env=env, check=True).stdout
+    rps = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))
+    lat = {}
+    for pct, value, unit in re.findall(r"\s(50|99)%\s+([\d.]+)(us|ms|s)\b", out):
+        lat[pct] = float(value) * {"us": 1e-3, "ms": 1.0, "s": 1e3}[unit]
+    total = re.search(r"(\d+) requests in", out)
+    non2xx = re.search(r"Non-2xx or 3xx responses: (\d+)", out)
+    return (
+        rps,
+        lat.get("50"),
+        lat.get("99"),
+        int(total.group(1)),
+        int(non2xx.group(1)) if non2xx else 0,
+    )
+
+
+def rss_kib(pid: int) -> int:
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith("VmRSS:"):
+            return int(line.split()[1])
+    return 0
+
+
+MIXED = """
+local n = 0
+local limit = tonumber(os.getenv("LIMIT"))
+math.randomseed(math.floor(os.clock() * 1e9) % 2147483647 + os.time())
+request = function()
+  local lat = 11 + math.random() * 58
+  local lon = 1 + math.random() * 88
+  local r = math.random(4)
+  local path
+  if r == 1 then path = string.format("/cubes/bench/point?lat=%.5f&lon=%.5f", lat, lon)
+  elseif r == 2 then path = string.format("/cubes/bench/disk?lat=%.5f&lon=%.5f&k=3", lat, lon)
+  elseif r == 3 then
+    path = string.format("/cubes/bench/radius?lat=%.5f&lon=%.5f&meters=15000", lat, lon)
+  else
+    path = string.format("/cubes/bench/point?lat=%.5f&lon=%.5f&level=7&datetime=../..", lat, lon)
+  end
+  return wrk.format("GET", path)
+end
+response = function(status, headers, body)
+  n = n + 1
+  if n >= limit then wrk.thread:stop() end
+end
+"""
+
+
+def main() -> None:
+    with S3Server() as s3:
+        bucket = s3.create_bucket()
+        url, options = f"s3://{bucket}/bench", s3.storage_options()
+        print(f"cube written to the S3 test server in {build(url, options):.1f} s")
+        cubes = [{"id": "bench", "url": url, "storage_options": options}]
+        cold_queries(s3, cubes, url, options)
+        svc = ServiceProcess(cubes, options={"cache_bytes": CACHE_BYTES, "max_zones": 150_000})
+        with svc, httpx.Client(base_url=svc.url, timeout=120) as http:
+            base_rss = rss_kib(svc.pid)
+            arrow_vs_json(http)
+            warm_throughput(svc)
+            memory(svc, base_rss)
+
+
+def plan_chunks(url: str, options: dict, query) -> int:
+    cat = Catalog(
+        [CubeSource("bench", url, storage_options=options)], opener=lambda u, o: open_cube(u, o)
+    )
+    cat.open_all()
+    return make_plan(resolve(cat, "bench", query), Limits(max_zones=150_000)).chunk_count
+
+
+def cold_queries(s3: S3Server, cubes: list, url: str, options: dict) -> None:
+    print("\n### cold queries (a fresh server each): chunk GETs against the plan's cover")
+    print(f"{'query':<26}{'zones':>8}{'plan':>6}{'GETs':>6}{'ratio':>7}{'time ms':>9}")
+    every = Selection(time=parse_datetime("../.."))
+    poly = sized_square(20.0, 40.0, 10_000, 9)
+    cases = [
+        (
+            "point",
+            "GET",
+            "/cubes/bench/point",
+            {"lat": 30.1, "lon": 3.2},
+            None,
+            PointQuery(30.1, 3.2),
+        ),
+        (
+            "disk k=10",
+            "GET",
+            "/cubes/bench/disk",
+            {"lat": 35.3, "lon": 12.7, "k": 10},
+            None,
+            DiskQuery(k=10, lat=35.3, lon=12.7),
+        ),
+        (
+            "polygon ~10 000 zones",
+            "POST",
+            "/cubes/bench/polygon",
+            {},
+            poly,
+            PolygonQuery(parse_polygon(poly, 100)),
+        ),
+        (
+            "one-year series (point)",
+            "GET",
+            "/cubes/bench/point",
+            {"lat": 55.5, "lon": 44.4, "datetime": "../.."},
+            None,
+            PointQuery(55.5, 44.4, every),
+        ),
+    ]
+    for name, method, path, params, body, query in cases:
+        planned = plan_chunks(url, options, query)
+        with ServiceProcess(cubes) as svc, httpx.Client(base_url=svc.url, timeout=120) as http:
+            mark = s3.mark()
+            t0 = time.perf_counter()
+            r = http.request(method, path, params=params, json=body)
+            elapsed = (time.perf_counter() - t0) * 1e3
+        r.raise_for_status()
+        gets = [q for q in s3.requests(since=mark) if q.is_object_get and "/c/" in q.path]
+        zones = len(r.json()["zones"])
+        ratio = len(gets) / planned
+        print(f"{name:<26}{zones:>8}{planned:>6}{len(gets):>6}{ratio:>7.2f}{elapsed:>9.1f}")
+
+
+def arrow_vs_json(http: httpx.Client) -> None:
+    print("\n### 100 000-zone polygon: Arrow against JSON (warm, median of 5)")
+    poly = sized_square(45.0, 40.0, 100_000, 9)
+    http.post("/cubes/bench/polygon", json=poly, params={"f": "arrow"}).raise_for_status()
+    rows = []
+    for fmt in ("json", "arrow", "csv", "geojson"):
+        times, size = [], 0
+        for _ in range(5 if fmt != "geojson" else 1):
+            t0 = time.perf_counter()
+            r = http.post("/cubes/bench/polygon", json=poly, params={"f": fmt})
+            r.raise_for_status()
+            size = len(r.content)
+            times.append(time.perf_counter() - t0)
+        rows.append((fmt, statistics.median(times), size))
+    zones = len(http.post("/cubes/bench/polygon", json=poly).json()["zones"])
+    print(f"zones: {zones}")
+    print(f"{'format':<10}{'time ms':>10}{'MB':>10}")
+    for fmt, t, size in rows:
+        print(f"{fmt:<10}{t * 1e3:>10.1f}{size / 1e6:>10.2f}")
+    tj, ta = rows[0][1], rows[1][1]
+    print(
+        f"Arrow is {tj / ta:.1f}x faster than JSON (goal >= 5), "
+        f"{rows[0][2] / rows[1][2]:.1f}x smaller"
+    )
+
+
+def warm_throughput(svc: ServiceProcess) -> None:
+    print("\n### warm point queries against /healthz (wrk, 2 threads, 32 connections, loopback)")
+    if shutil.which("wrk") is None:
+        print("wrk is not installed: skipped (apt-get update && apt-get install -y wrk)")
+        return
+    point = f"{svc.url}/cubes/bench/point?lat=45.2&lon=7.6"
+    httpx.get(point).raise_for_status()
+    wrk(point, seconds=2)  # warm-up
+    h = wrk(f"{svc.url}/healthz")
+    p = wrk(point)
+    print(f"{'path':<10}{'req/s':>10}{'p50 ms':>10}{'p99 ms':>10}{'non-2xx':>10}")
+    for name, (rps, p50, p99, _, bad) in (("healthz", h), ("point", p)):
+        print(f"{name:<10}{rps:>10.0f}{p50:>10.2f}{p99:>10.2f}{bad:>10}")
+    print(
+        f"point / healthz rate: {p[0] / h[0]:.2f} (goal >= 0.6); "
+        f"point p99 / p50: {p[2] / p[1]:.2f} (goal < 3)"
+    )
+
+
+def memory(svc: ServiceProcess, base_rss: int) -> None:
+    print("\n### server RSS after 100 000 mixed requests (point, disk k=3, radius, series)")
+    if shutil.which("wrk") is None:
+        print("wrk is not installed: skipped")
+        return
+    with tempfile.TemporaryDirectory() as tmp:
+        script = Path(tmp) / "mixed.lua"
+        script.write_text(MIXED)
+        env = {**os.environ, "LIMIT": "50000"}  # per thread, two threads
+        before = rss_kib(svc.pid)
+        t0 = time.perf_counter()
+        rps, p50, p99, total, bad = wrk(
+            svc.url + "/", seconds=600, connections=16, script=script, env=env
+        )
+        elapsed = time.perf_counter() - t0
+    after = rss_kib(svc.pid)
+    metrics = httpx.get(svc.url + "/metrics").text
+    held = re.search(r"^alveary_chunk_cache_bytes ([\d.e+]+)", metrics, re.M)
+    print(
+        f"requests: {total} in {elapsed:.0f} s ({rps:.0f}/s), non-2xx: {bad}, "
+        f"p50 {p50:.1f} ms, p99 {p99:.1f} ms"
+    )
+    print(
+        f"RSS at start-up: {base_rss / 1024:.0f} MiB, before the run: {before / 1024:.0f} MiB, "
+        f"after: {after / 1024:.0f} MiB"
+    )
+    print(
+        f"cache: {float(held.group(1)) / 2**20:.0f} MiB held, "
+        f"{CACHE_BYTES / 2**20:.0f} MiB configured"
+    )
+    print(
+        f"RSS - start-up baseline = {(after - base_rss) / 1024:.0f} MiB "
+        f"(goal: <= cache size {CACHE_BYTES / 2**20:.0f} MiB + a fixed allowance)"
+    )
+
+
+if __name__ == "__main__":
+    import sys
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+    main()
