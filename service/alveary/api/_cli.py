@@ -89,6 +89,9 @@ def _settings(overrides: dict[str, Any]) -> Any:
         return Settings(**overrides)
     except ValidationError as exc:
         first = exc.errors()[0]
+        cause = (first.get("ctx") or {}).get("error")
+        if isinstance(cause, InvalidInput):
+            raise cause from None
         where = ".".join(str(p) for p in first.get("loc", ())) or "settings"
         raise InvalidInput(where, first.get("input"), str(first.get("msg"))) from None
 
