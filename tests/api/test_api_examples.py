@@ -1,25 +1,24 @@
 """The OpenAPI examples under openapi_examples/: every operation has one, they are in the
-live OpenAPI document, and replayed against a real service they get the documented
-response (the numbers of the analytic field, so the examples are also checked against
-``support.analytic.field``)."""
+live OpenAPI document, and replayed against a real service serving the demo cube (built
+here by ``alveary.ingest.build_demo``) they get the documented response."""
 
 from __future__ import annotations
 
 import httpx
-import numpy as np
 import pytest
 
 from alveary.api._openapi import load_examples
-from support.analytic import field
 from support.openapi_examples import EXAMPLES, ROOT, compare, send
 from support.server import ServiceProcess
 
 
 @pytest.fixture(scope="module")
-def demo_service(analytic_store):
-    url, options = analytic_store
-    cubes = [{"id": "demo", "url": url, "title": "Analytic", "storage_options": options}]
-    with ServiceProcess(cubes, env={"ALVEARY_EXAMPLES": str(ROOT)}) as proc:
+def demo_service(tmp_path_factory):
+    from alveary.ingest import build_demo
+
+    store = tmp_path_factory.mktemp("demo-store")
+    build_demo(store)
+    with ServiceProcess(store=store, env={"ALVEARY_EXAMPLES": str(ROOT)}) as proc:
         yield proc
 
 
@@ -60,12 +59,3 @@ def test_replay(demo_service, op_id, name, example):
         assert r.text.startswith(expected["body"].splitlines()[0])
         return
     compare(expected["body"], r.json())
-
-
-def test_point_example_is_the_field():
-    example = load_examples(ROOT)["query_point"]["series"]["response"]["body"]
-    row = example["zones"][0]
-    days = np.arange(3.0, 6.0)  # 2024-05-04 .. 2024-05-06
-    np.testing.assert_allclose(
-        row["values"]["temp"], field(row["lat"], row["lon"], days), rtol=1e-12
-    )

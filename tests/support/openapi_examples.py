@@ -1,9 +1,10 @@
 """The OpenAPI examples: which requests they are, how they are recorded and compared.
 
 The files under ``openapi_examples/<operation_id>/<name>.json`` are recorded from a
-running service by ``python tests/support/openapi_examples.py BASE_URL`` (the service
-serving the analytic cube of ``support.analytic`` under the id ``demo``), loaded into the
-OpenAPI document by the service, and replayed by ``tests/api/test_api_examples.py``.
+service serving the demo cube (``alveary demo``) by
+``python tests/support/openapi_examples.py BASE_URL``, loaded into the OpenAPI document
+by the service, and replayed by ``tests/api/test_api_examples.py``. The demo data are
+invented.
 """
 
 from __future__ import annotations
@@ -20,23 +21,34 @@ __all__ = ["EXAMPLES", "ROOT", "compare", "record", "send"]
 
 ROOT = Path(__file__).resolve().parents[2] / "openapi_examples"
 
+CUBE = "velmora-irrigation"
+BASE = f"/cubes/{CUBE}"
+WEEK = "2025-06-01T00:00:00Z/2025-06-07T00:00:00Z"
 SQUARE = {
     "type": "Polygon",
-    "coordinates": [[[7.0, 45.0], [7.3, 45.0], [7.3, 45.2], [7.0, 45.2], [7.0, 45.0]]],
+    "coordinates": [
+        [
+            [-36.105, 30.545],
+            [-36.095, 30.545],
+            [-36.095, 30.553],
+            [-36.105, 30.553],
+            [-36.105, 30.545],
+        ]
+    ],
 }
 
 # (operation id, name, summary, method, path, query, body, compare)
 EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
     ("landing", "landing", "Links and version", "GET", "/", {}, None, "exact"),
     ("list_cubes", "all", "Every cube served", "GET", "/cubes", {}, None, "exact"),
-    ("get_cube", "demo", "The demo cube's metadata", "GET", "/cubes/demo", {}, None, "exact"),
+    ("get_cube", "demo", "The demo cube's metadata", "GET", BASE, {}, None, "exact"),
     (
         "query_point",
-        "series",
-        "Temperature series at a point, open-ended interval",
+        "week",
+        "Soil moisture at a point for one week",
         "GET",
-        "/cubes/demo/point",
-        {"lat": 45.2, "lon": 7.6, "vars": "temp", "datetime": "2024-05-04T00:00:00Z/.."},
+        f"{BASE}/point",
+        {"lat": 30.55, "lon": -36.1, "vars": "soil_moisture", "datetime": WEEK},
         None,
         "exact",
     ),
@@ -45,42 +57,48 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
         "bad-latitude",
         "Latitude out of range: 422 problem+json",
         "GET",
-        "/cubes/demo/point",
-        {"lat": 91, "lon": 7.6},
+        f"{BASE}/point",
+        {"lat": 91, "lon": -36.1},
         None,
         "exact",
     ),
     (
         "query_disk",
         "ring",
-        "The zone under a fix and its neighbours (k = 1)",
+        "The zone under a fix and its six neighbours (k = 1)",
         "GET",
-        "/cubes/demo/disk",
-        {"lat": 45.2, "lon": 7.6, "k": 1, "vars": "temp"},
+        f"{BASE}/disk",
+        {
+            "lat": 30.55,
+            "lon": -36.1,
+            "k": 1,
+            "vars": "canopy_temperature",
+            "datetime": "2025-07-15",
+        },
         None,
         "exact",
     ),
     (
         "query_radius",
         "nearest",
-        "Nearest zone with rain data within a GPS fix's accuracy",
+        "Nearest zone with data within a GPS fix's 300 m accuracy",
         "GET",
-        "/cubes/demo/radius",
-        {"lat": 44.75, "lon": 7.6, "meters": 20000, "vars": "rain", "nearest": "true"},
+        f"{BASE}/radius",
+        {"lat": 30.55, "lon": -36.1, "meters": 300, "nearest": "true", "datetime": "2025-07-15"},
         None,
         "exact",
     ),
     (
         "query_bbox",
         "stats",
-        "Mean and maximum per day over a box",
+        "Daily mean, maximum and count of soil moisture over a box for a week",
         "GET",
-        "/cubes/demo/bbox",
+        f"{BASE}/bbox",
         {
-            "bbox": "7.0,45.0,7.3,45.2",
+            "bbox": "-36.2,30.5,-36.0,30.6",
             "stats": "mean,max,count",
-            "vars": "temp",
-            "datetime": "../..",
+            "vars": "soil_moisture",
+            "datetime": WEEK,
         },
         None,
         "exact",
@@ -88,30 +106,30 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
     (
         "query_polygon",
         "values",
-        "Per-zone values in a polygon at the latest step",
+        "Per-zone values in a small field parcel on one day",
         "POST",
-        "/cubes/demo/polygon",
-        {"vars": "temp"},
+        f"{BASE}/polygon",
+        {"datetime": "2025-07-15"},
         SQUARE,
         "exact",
     ),
     (
         "query_points",
         "two",
-        "Two points at once (JSON; Arrow with f=arrow)",
+        "Two points at once (JSON here; pipelines ask for f=arrow)",
         "POST",
-        "/cubes/demo/points",
-        {"vars": "temp"},
-        {"lat": [45.2, 44.9], "lon": [7.6, 7.1]},
+        f"{BASE}/points",
+        {"vars": "soil_moisture", "datetime": "2025-07-15"},
+        {"lat": [30.55, 30.62], "lon": [-36.1, -36.0]},
         "exact",
     ),
     (
         "find_zone",
         "at-point",
-        "The level-9 zone under a point",
+        "The level-12 zone under a point",
         "GET",
         "/zones",
-        {"lat": 45.2, "lon": 7.6, "level": 9},
+        {"lat": 30.55, "lon": -36.1, "level": 12},
         None,
         "exact",
     ),

@@ -151,7 +151,7 @@ def serve_demo(
 
     store = Path(url) if url is not None else default_store()
     if not scan_store(store):
-        from alveary.ingest.demo import build_demo
+        from alveary.ingest import build_demo
 
         print(f"alveary: building the demo cube in {store} ...", file=sys.stderr)
         build_demo(store)
