@@ -1,0 +1,107 @@
+"""``alveary ingest`` (and the demo build): register(subparsers) for the command line."""
+
+from __future__ import annotations
+
+import argparse
+import importlib.util
+import sys
+from typing import Any
+
+__all__ = ["register"]
+
+
+def register(subparsers: Any) -> None:
+    """Add ``ingest`` and ``build-demo`` (and ``demo`` if no other layer provides it)."""
+    p = subparsers.add_parser(
+        "ingest",
+        help="build a cube from GeoTIFF, NetCDF, Zarr, CSV or Parquet sources",
+        description=(
+            "Resample sources to a refinement level of the grid and publish a new version "
+            "of the cube at --out (a local path or an fsspec URL such as s3://bucket/x)."
+        ),
+    )
+    p.add_argument("sources", nargs="+", metavar="SOURCE", help="input files")
+    p.add_argument("--out", required=True, metavar="URL", help="where the cube is published")
+    p.add_argument("--level", required=True, type=int, metavar="L", help="target level 0..24")
+    p.add_argument(
+        "--variable",
+        action="append",
+        dest="variables",
+        metavar="NAME",
+        help="variable to take (repeatable); names a GeoTIFF series",
+    )
+    p.add_argument("--method", choices=("nearest", "mean"), default="nearest")
+    p.add_argument("--pyramid", action="store_true", help="also build every coarser level")
+    p.add_argument("--pyramid-min-level", type=int, default=0, metavar="L")
+    p.add_argument("--cube-id", default=None, metavar="ID")
+    p.add_argument("--title", default=None)
+    p.add_argument("--scheduler", default=None, metavar="ADDRESS", help="dask scheduler")
+    p.add_argument("--mean-depth", type=int, default=None, metavar="D")
+    p.add_argument("--min-coverage", type=float, default=0.5, metavar="F")
+    p.add_argument("--time-block", type=int, default=None, metavar="N")
+    p.add_argument("--spatial-block", type=int, default=None, metavar="N")
+    p.add_argument("--time-step", default="1D", help="binning step for point tables")
+    p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.set_defaults(handler=_ingest)
+
+    b = subparsers.add_parser(
+        "build-demo",
+        help="build the demo cube (invented data) on the embedded store",
+        description="Build the demo cube on the embedded store (var/cubes or $ALVEARY_STORE).",
+    )
+    b.add_argument("--store", default=None, help="store directory (default var/cubes)")
+    b.add_argument("--force", action="store_true", help="rebuild even if it exists")
+    b.set_defaults(handler=_build_demo)
+
+    if importlib.util.find_spec("alveary.api._cli") is None:
+        d = subparsers.add_parser("demo", help="build the demo cube, then serve it")
+        d.add_argument("--store", default=None)
+        d.add_argument("--build-only", action="store_true", help="build, do not serve")
+        d.add_argument("--force", action="store_true")
+        d.set_defaults(handler=_demo)
+
+
+def _ingest(args: argparse.Namespace) -> int:
+    from alveary.cube._layout import DEFAULT_SPATIAL_BLOCK, DEFAULT_TIME_BLOCK
+    from alveary.ingest._build import ingest
+
+    summary = ingest(
+        args.sources,
+        args.out,
+        args.level,
+        variables=args.variables,
+        method=args.method,
+        pyramid=args.pyramid,
+        cube_id=args.cube_id,
+        scheduler=args.scheduler,
+        title=args.title,
+        mean_depth=args.mean_depth,
+        min_coverage=args.min_coverage,
+        pyramid_min_level=args.pyramid_min_level,
+        time_block=args.time_block or DEFAULT_TIME_BLOCK,
+        spatial_block=args.spatial_block or DEFAULT_SPATIAL_BLOCK,
+        time_step=args.time_step,
+        progress=not args.no_progress and sys.stderr.isatty(),
+    )
+    print(summary.text())
+    return 0
+
+
+def _build_demo(args: argparse.Namespace) -> int:
+    from alveary.ingest._demo import build_demo
+
+    url = build_demo(args.store, force=args.force, progress=sys.stderr.isatty())
+    summary = getattr(build_demo, "last_summary", None)
+    print(summary.text() if summary is not None else f"demo cube already built at {url}")
+    return 0
+
+
+def _demo(args: argparse.Namespace) -> int:
+    _build_demo(args)
+    if args.build_only:
+        return 0
+    try:
+        from alveary.api._cli import serve_demo
+    except ImportError:
+        return 0
+    return int(serve_demo(args.store) or 0)

@@ -1,0 +1,615 @@
+"""Raster sources: GeoTIFF (rasterio) and NetCDF or Zarr (xarray), any CRS pyproj knows.
+
+A :class:`RasterSource` describes one variable: the files and time steps it comes from,
+its CRS and pixel-centre coordinates, and its no-data value. It is small and picklable;
+each worker opens the files itself and reads only the window a chunk needs.
+"""
+
+from __future__ import annotations
+
+import re
+import threading
+from dataclasses import dataclass, field
+from datetime import datetime
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from alveary._errors import IngestError
+
+__all__ = ["RasterSource", "open_geotiffs", "open_xarray_sources"]
+
+_DATE = re.compile(r"(\d{4})-?(\d{2})-?(\d{2})(?:[T_-]?(\d{2})(\d{2})(\d{2})?)?")
+
+
+def date_from_name(path: str) -> np.datetime64 | None:
+    """A date (and optional time) written in a file name, e.g. ``sm_2024-03-01.tif``.
+
+    Examples
+    --------
+    >>> date_from_name("canopy_20240301.tif")
+    np.datetime64('2024-03-01T00:00:00')
+    >>> date_from_name("dem.tif") is None
+    True
+    """
+    m = _DATE.search(Path(path).stem)
+    if m is None:
+        return None
+    y, mo, d, hh, mm, ss = m.groups()
+    try:
+        dt = datetime(int(y), int(mo), int(d), int(hh or 0), int(mm or 0), int(ss or 0))
+    except ValueError:
+        return None
+    return np.datetime64(dt, "s")
+
+
+def stem_without_date(path: str) -> str:
+    """The file stem with a date and its separators removed: ``sm_2024-03-01`` -> ``sm``."""
+    stem = _DATE.sub("", Path(path).stem).strip("_-. ")
+    stem = re.sub(r"[^A-Za-z0-9_]", "_", stem)
+    if not stem or not stem[0].isalpha():
+        stem = "v_" + stem
+    return stem
+
+
+def _axis_centres(first: float, step: float, count: int) -> np.ndarray:
+    return first + step * np.arange(count, dtype=np.float64)
+
+
+@dataclass(frozen=True, eq=False)
+class RasterSource:
+    """One variable of a raster source.
+
+    ``steps`` lists, for each time step, ``(path, selector)``: for GeoTIFF the band
+    number, for xarray sources ``(variable name, time index or None)``.
+    """
+
+    name: str
+    kind: str  # "gtiff" or "xarray"
+    crs_wkt: str
+    x: np.ndarray = field(repr=False)  # pixel-centre coordinates along columns
+    y: np.ndarray = field(repr=False)  # pixel-centre coordinates along rows
+    times: np.ndarray = field(repr=False)
+    steps: tuple[tuple[str, Any], ...] = field(repr=False)
+    nodata: float | None = None
+    scale: float = 1.0
+    offset: float = 0.0
+    units: str = "1"
+    long_name: str = ""
+    dtype: str = "float32"
+    packing: dict[str, Any] | None = None
+    dims: tuple[str, str] | None = None  # xarray: (y dim, x dim)
+    time_dim: str | None = None
+    engine: str | None = None
+
+    # -- geometry --------------------------------------------------------------------
+    @property
+    def geographic(self) -> bool:
+        from pyproj import CRS
+
+        return CRS.from_wkt(self.crs_wkt).is_geographic
+
+    @property
+    def pixel_size(self) -> tuple[float, float]:
+        dx = abs(float(self.x[1] - self.x[0])) if self.x.size > 1 else 1.0
+        dy = abs(float(self.y[1] - self.y[0])) if self.y.size > 1 else 1.0
+        return dx, dy
+
+    def pixel_size_m(self) -> float:
+        """Approximate pixel edge in metres (geographic rasters: at the equator)."""
+        dx, dy = self.pixel_size
+        if self.geographic:
+            return max(dx, dy) * 111_320.0
+        return max(dx, dy)
+
+    def bounds(self) -> tuple[float, float, float, float]:
+        dx, dy = self.pixel_size
+        return (
+            float(self.x.min() - dx / 2),
+            float(self.y.min() - dy / 2),
+            float(self.x.max() + dx / 2),
+            float(self.y.max() + dy / 2),
+        )
+
+    def lonlat_bounds(self) -> tuple[float, float, float, float]:
+        """``(west, south, east, north)`` in degrees (west > east: crosses 180)."""
+        from pyproj import CRS, Transformer
+
+        w, s, e, n = self.bounds()
+        crs = CRS.from_wkt(self.crs_wkt)
+        if crs.is_geographic:
+            if e - w >= 359.9:
+                return (-180.0, max(-90.0, s), 180.0, min(90.0, n))
+            w = ((w + 180.0) % 360.0) - 180.0
+            e = ((e + 180.0) % 360.0) - 180.0
+            return (w, max(-90.0, s), e, min(90.0, n))
+        tr = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
+        return tuple(float(v) for v in tr.transform_bounds(w, s, e, n, densify_pts=21))
+
+    def is_global(self) -> bool:
+        w, s, e, n = self.lonlat_bounds()
+        return (e - w) >= 359.0 and s <= -89.0 and n >= 89.0
+
+    def pixel_index(self, lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Row and column of the pixel holding each point (-1 outside the raster)."""
+        from pyproj import CRS, Transformer
+
+        crs = CRS.from_wkt(self.crs_wkt)
+        lat = np.asarray(lat, dtype=np.float64)
+        lon = np.asarray(lon, dtype=np.float64)
+        if crs.is_geographic and _is_plain_lonlat(crs):
+            xs, ys = lon, lat
+        else:
+            tr = _transformer(self.crs_wkt)
+            xs, ys = tr.transform(lon, lat)
+            xs, ys = np.asarray(xs), np.asarray(ys)
+        if crs.is_geographic:
+            dx = self.pixel_size[0]
+            west = float(self.x.min() - dx / 2)
+            xs = west + np.mod(xs - west, 360.0)
+        col = _nearest_index(self.x, xs)
+        row = _nearest_index(self.y, ys)
+        bad = (col < 0) | (row < 0)
+        col[bad] = -1
+        row[bad] = -1
+        del Transformer
+        return row, col
+
+    # -- values ----------------------------------------------------------------------
+    def read(self, step: int, rows: slice, cols: slice) -> np.ndarray:
+        """Pixel values of one time step in a window, float64 with NaN for no-data."""
+        path, sel = self.steps[step]
+        if self.kind == "gtiff":
+            raw = _read_gtiff(path, int(sel), rows, cols)
+        else:
+            raw = _read_xarray(self, path, sel, rows, cols)
+        out = raw.astype(np.float64)
+        bad = ~np.isfinite(out)
+        if self.nodata is not None and np.isfinite(self.nodata):
+            bad |= raw == self.nodata
+        out = out * self.scale + self.offset
+        out[bad] = np.nan
+        return out
+
+    def sample(self, step: int, row: np.ndarray, col: np.ndarray) -> np.ndarray:
+        """Values at pixels ``(row, col)`` (-1: outside, NaN) for one time step."""
+        out = np.full(row.shape, np.nan)
+        ok = row >= 0
+        if not ok.any():
+            return out
+        r0, r1 = int(row[ok].min()), int(row[ok].max()) + 1
+        c0, c1 = int(col[ok].min()), int(col[ok].max()) + 1
+        block = self.read(step, slice(r0, r1), slice(c0, c1))
+        out[ok] = block[row[ok] - r0, col[ok] - c0]
+        return out
+
+
+def _is_plain_lonlat(crs) -> bool:
+    # WGS84 (or an ellipsoid close enough for pixel lookup) with lon/lat degrees
+    try:
+        return crs.to_epsg() in (4326, 4979, 4269, 4258) or crs.datum.name.startswith(
+            "World Geodetic System 1984"
+        )
+    except Exception:  # pragma: no cover - pyproj edge cases
+        return False
+
+
+_TRANSFORMERS = threading.local()
+
+
+def _transformer(wkt: str):
+    from pyproj import Transformer
+
+    cache = getattr(_TRANSFORMERS, "cache", None)
+    if cache is None:
+        cache = _TRANSFORMERS.cache = {}
+    tr = cache.get(wkt)
+    if tr is None:
+        tr = cache[wkt] = Transformer.from_crs("EPSG:4326", wkt, always_xy=True)
+    return tr
+
+
+def _nearest_index(centres: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Index of the nearest pixel centre along a monotonic axis, -1 outside it."""
+    c = np.asarray(centres, dtype=np.float64)
+    n = c.size
+    flip = n > 1 and c[1] < c[0]
+    if flip:
+        c = c[::-1]
+    if n == 1:
+        idx = np.zeros(v.shape, dtype=np.int64)
+        half = 0.5
+    else:
+        mids = (c[1:] + c[:-1]) / 2
+        idx = np.searchsorted(mids, v, side="right").astype(np.int64)
+        half = None
+    lo_edge = c[0] - ((c[1] - c[0]) / 2 if n > 1 else half)
+    hi_edge = c[-1] + ((c[-1] - c[-2]) / 2 if n > 1 else half)
+    outside = ~np.isfinite(v) | (v < lo_edge) | (v >= hi_edge)
+    if flip:
+        idx = n - 1 - idx
+    idx[outside] = -1
+    return idx
+
+
+# -- GeoTIFF ---------------------------------------------------------------------------
+def _read_gtiff(path: str, band: int, rows: slice, cols: slice) -> np.ndarray:
+    import rasterio
+    from rasterio.windows import Window
+
+    with rasterio.open(path) as ds:
+        win = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
+        return ds.read(band, window=win)
+
+
+def _gtiff_info(path: str) -> dict[str, Any]:
+    import rasterio
+    from rasterio.errors import RasterioIOError
+
+    try:
+        with rasterio.open(path) as ds:
+            if ds.crs is None:
+                raise IngestError(
+                    "source", path, "a raster with a CRS (this GeoTIFF has no CRS: unknown CRS)"
+                )
+            t = ds.transform
+            if t.b != 0 or t.d != 0:
+                raise IngestError("source", path, "a north-up raster (no rotation terms)")
+            tags = ds.tags()
+            return {
+                "crs": ds.crs.to_wkt(),
+                "x": _axis_centres(t.c + t.a / 2, t.a, ds.width),
+                "y": _axis_centres(t.f + t.e / 2, t.e, ds.height),
+                "count": ds.count,
+                "nodata": ds.nodata,
+                "dtype": ds.dtypes[0],
+                "scales": ds.scales,
+                "offsets": ds.offsets,
+                "units": ds.units,
+                "descriptions": ds.descriptions,
+                "time": tags.get("TIFFTAG_DATETIME") or tags.get("time"),
+            }
+    except RasterioIOError as exc:
+        raise IngestError("source", path, f"a readable GeoTIFF ({exc})") from None
+
+
+def _tiff_time(text: str | None) -> np.datetime64 | None:
+    if not text:
+        return None
+    for fmt in ("%Y:%m:%d %H:%M:%S", "%Y-%m-%dT%H:%M:%S", "%Y-%m-%d"):
+        try:
+            return np.datetime64(datetime.strptime(text.strip().rstrip("Z"), fmt), "s")
+        except ValueError:
+            continue
+    return None
+
+
+def _check_same_grid(name: str, first: tuple[str, dict], other: tuple[str, dict]) -> None:
+    (p0, a), (p1, b) = first, other
+    from pyproj import CRS
+
+    same = (
+        a["x"].shape == b["x"].shape
+        and a["y"].shape == b["y"].shape
+        and np.allclose(a["x"], b["x"], rtol=0, atol=1e-9 * max(1.0, abs(a["x"]).max()))
+        and np.allclose(a["y"], b["y"], rtol=0, atol=1e-9 * max(1.0, abs(a["y"]).max()))
+        and CRS.from_wkt(a["crs"]) == CRS.from_wkt(b["crs"])
+    )
+    if not same:
+        raise IngestError(
+            "source",
+            p1,
+            f"the same grid (CRS, size, pixel coordinates) as {p0} for variable {name!r}",
+        )
+
+
+def open_geotiffs(paths: list[str], names: list[str] | None) -> dict[str, RasterSource]:
+    """GeoTIFF files as variables over time.
+
+    With one ``--variable`` name, every file is a time step of that variable. Without,
+    a single-band file is a variable named after the file (its date removed), and
+    files sharing that name are its time steps; a multi-band file gives one variable
+    per band (``<name>_b<k>`` or the band description).
+    """
+    infos = [(p, _gtiff_info(p)) for p in paths]
+    groups: dict[str, list[tuple[str, int, dict]]] = {}
+    for path, info in infos:
+        if names and len(names) == 1:
+            if info["count"] != 1:
+                raise IngestError(
+                    "source", path, "single-band GeoTIFFs when one --variable is given"
+                )
+            groups.setdefault(names[0], []).append((path, 1, info))
+            continue
+        base = stem_without_date(path)
+        if info["count"] == 1:
+            groups.setdefault(base, []).append((path, 1, info))
+        else:
+            for k in range(1, info["count"] + 1):
+                desc = (info["descriptions"] or [None] * info["count"])[k - 1]
+                vname = stem_without_date(desc) if desc else f"{base}_b{k}"
+                groups.setdefault(vname, []).append((path, k, info))
+    if names and len(names) > 1:
+        unknown = sorted(set(names) - set(groups))
+        if unknown:
+            raise IngestError(
+                "variable", unknown[0], f"one of the variables in the files: {sorted(groups)}"
+            )
+        groups = {k: v for k, v in groups.items() if k in names}
+    out = {}
+    for vname, members in groups.items():
+        first = members[0]
+        for m in members[1:]:
+            _check_same_grid(vname, (first[0], first[2]), (m[0], m[2]))
+        times = []
+        for path, _, info in members:
+            t = date_from_name(path) or _tiff_time(info["time"])
+            times.append(t)
+        if any(t is None for t in times):
+            if len(members) > 1:
+                undated = [m[0] for m, t in zip(members, times, strict=True) if t is None]
+                raise IngestError(
+                    "source",
+                    undated[0],
+                    "files with a date in the name (YYYY-MM-DD) or a TIFFTAG_DATETIME, "
+                    "so that they can be put in time order",
+                )
+            times = [np.datetime64(0, "s")]
+        order = np.argsort(np.array(times, dtype="datetime64[s]"), kind="stable")
+        tarr = np.array(times, dtype="datetime64[s]")[order]
+        if tarr.size > 1 and (np.diff(tarr.astype(np.int64)) == 0).any():
+            dup = str(tarr[np.flatnonzero(np.diff(tarr.astype(np.int64)) == 0)[0]])
+            raise IngestError("source", vname, f"one file per time step (two files at {dup})")
+        info = first[2]
+        band = first[1]
+        scale = (info["scales"] or (1.0,))[band - 1] or 1.0
+        offset = (info["offsets"] or (0.0,))[band - 1] or 0.0
+        dtype = np.dtype(info["dtype"])
+        packing = None
+        if dtype.kind in "iu" and (scale != 1.0 or offset != 0.0):
+            packing = {"dtype": dtype.name, "scale_factor": scale, "add_offset": offset}
+        out[vname] = RasterSource(
+            name=vname,
+            kind="gtiff",
+            crs_wkt=info["crs"],
+            x=info["x"],
+            y=info["y"],
+            times=tarr,
+            steps=tuple((members[i][0], members[i][1]) for i in order),
+            nodata=info["nodata"],
+            scale=float(scale),
+            offset=float(offset),
+            units=(info["units"] or ("",))[band - 1] or "1",
+            long_name=vname.replace("_", " "),
+            packing=packing,
+        )
+    return out
+
+
+# -- NetCDF / Zarr through xarray ------------------------------------------------------
+_LOCAL = threading.local()
+
+
+def _open_ds(path: str, engine: str | None):
+    import xarray as xr
+
+    cache = getattr(_LOCAL, "ds", None)
+    if cache is None:
+        cache = _LOCAL.ds = {}
+    ds = cache.get(path)
+    if ds is None:
+        if len(cache) > 16:
+            for old in cache.values():
+                old.close()
+            cache.clear()
+        kw = {"mask_and_scale": False, "decode_times": True}
+        if engine == "zarr":
+            ds = xr.open_zarr(path, **kw)
+        else:
+            ds = xr.open_dataset(path, engine=engine, **kw)
+        cache[path] = ds
+    return ds
+
+
+def _read_xarray(src: RasterSource, path: str, sel: Any, rows: slice, cols: slice) -> np.ndarray:
+    var, tindex = sel
+    ds = _open_ds(path, src.engine)
+    da = ds[var]
+    ydim, xdim = src.dims
+    isel = {ydim: rows, xdim: cols}
+    if src.time_dim is not None and tindex is not None:
+        isel[src.time_dim] = int(tindex)
+    da = da.isel(isel)
+    extra = [d for d in da.dims if d not in (ydim, xdim)]
+    if extra:
+        da = da.isel({d: 0 for d in extra})
+    return np.asarray(da.transpose(ydim, xdim).values)
+
+
+def _find_axes(ds, da, path: str):
+    from pyproj import CRS
+
+    def role(name: str) -> str | None:
+        c = ds[name] if name in ds.variables else None
+        attrs = dict(c.attrs) if c is not None else {}
+        sn = str(attrs.get("standard_name", "")).lower()
+        units = str(attrs.get("units", "")).lower()
+        axis = str(attrs.get("axis", "")).upper()
+        low = name.lower()
+        if sn == "latitude" or units in ("degrees_north", "degree_north", "degrees_n"):
+            return "lat"
+        if sn == "longitude" or units in ("degrees_east", "degree_east", "degrees_e"):
+            return "lon"
+        if sn == "projection_y_coordinate":
+            return "y"
+        if sn == "projection_x_coordinate":
+            return "x"
+        if low in ("lat", "latitude"):
+            return "lat"
+        if low in ("lon", "longitude", "long"):
+            return "lon"
+        if low == "y" or axis == "Y":
+            return "y"
+        if low == "x" or axis == "X":
+            return "x"
+        if c is not None and np.issubdtype(c.dtype, np.datetime64):
+            return "time"
+        if low == "time" or axis == "T":
+            return "time"
+        return None
+
+    roles = {d: role(d) for d in da.dims}
+    ydim = next((d for d, r in roles.items() if r in ("lat", "y")), None)
+    xdim = next((d for d, r in roles.items() if r in ("lon", "x")), None)
+    tdim = next((d for d, r in roles.items() if r == "time"), None)
+    if ydim is None or xdim is None:
+        raise IngestError(
+            "source", path, f"variable {da.name!r} with latitude/longitude or y/x dimensions"
+        )
+    if roles[ydim] == "lat" and roles[xdim] == "lon":
+        crs = CRS.from_epsg(4326)
+    else:
+        crs = None
+        gm = da.attrs.get("grid_mapping")
+        if gm and gm in ds.variables:
+            attrs = dict(ds[gm].attrs)
+            for key in ("crs_wkt", "spatial_ref"):
+                if key in attrs:
+                    try:
+                        crs = CRS.from_wkt(str(attrs[key]))
+                    except Exception:
+                        crs = None
+                    break
+            if crs is None:
+                try:
+                    crs = CRS.from_cf(attrs)
+                except Exception:
+                    crs = None
+        if crs is None:
+            raise IngestError(
+                "source",
+                path,
+                f"a CRS for variable {da.name!r}: projected x/y axes need a CF grid_mapping "
+                "(crs_wkt, spatial_ref or CF projection attributes) pyproj can read "
+                "(unknown CRS)",
+            )
+    return ydim, xdim, tdim, crs
+
+
+def open_xarray_sources(paths: list[str], names: list[str] | None) -> dict[str, RasterSource]:
+    """NetCDF files or Zarr stores: each ``--variable`` over the files' time steps."""
+    if not names:
+        raise IngestError(
+            "variable", None, "one or more --variable names for NetCDF or Zarr sources"
+        )
+    per_var: dict[str, list[tuple[str, dict]]] = {n: [] for n in names}
+    for path in paths:
+        engine = (
+            "zarr"
+            if path.rstrip("/").endswith(".zarr")
+            or Path(path, "zarr.json").exists()
+            or Path(path, ".zgroup").exists()
+            else None
+        )
+        try:
+            ds = _open_ds(path, engine)
+        except Exception as exc:
+            raise IngestError("source", path, f"a readable NetCDF or Zarr source ({exc})") from None
+        present = [n for n in names if n in ds.data_vars]
+        if not present:
+            raise IngestError(
+                "variable",
+                ",".join(names),
+                f"variables of {path}: {sorted(str(v) for v in ds.data_vars)}",
+            )
+        for n in present:
+            da = ds[n]
+            ydim, xdim, tdim, crs = _find_axes(ds, da, path)
+            x = (
+                np.asarray(ds[xdim].values, dtype=np.float64)
+                if xdim in ds.variables
+                else np.arange(da.sizes[xdim], dtype=np.float64)
+            )
+            y = (
+                np.asarray(ds[ydim].values, dtype=np.float64)
+                if ydim in ds.variables
+                else np.arange(da.sizes[ydim], dtype=np.float64)
+            )
+            for axis, arr in (("x", x), ("y", y)):
+                if arr.size > 1 and not (np.all(np.diff(arr) > 0) or np.all(np.diff(arr) < 0)):
+                    raise IngestError("source", path, f"a monotonic {axis} axis for {n!r}")
+            if tdim is not None:
+                tvals = np.asarray(ds[tdim].values)
+                if not np.issubdtype(tvals.dtype, np.datetime64):
+                    raise IngestError("source", path, f"a CF time axis for {n!r} ({tdim})")
+                times = tvals.astype("datetime64[s]")
+                steps = [(path, (n, k)) for k in range(times.size)]
+            else:
+                t = date_from_name(path)
+                times = np.array([t if t is not None else np.datetime64(0, "s")])
+                steps = [(path, (n, None))]
+            attrs = dict(da.attrs)
+            enc_dtype = np.dtype(da.dtype)
+            scale = float(attrs.get("scale_factor", 1.0))
+            offset = float(attrs.get("add_offset", 0.0))
+            nodata = attrs.get("_FillValue", attrs.get("missing_value"))
+            if nodata is None:
+                nodata = da.encoding.get("_FillValue")
+            packing = None
+            if enc_dtype.kind in "iu" and (scale != 1.0 or offset != 0.0):
+                packing = {"dtype": enc_dtype.name, "scale_factor": scale, "add_offset": offset}
+            per_var[n].append(
+                (
+                    path,
+                    {
+                        "crs": crs.to_wkt(),
+                        "x": x,
+                        "y": y,
+                        "times": times,
+                        "steps": steps,
+                        "dims": (ydim, xdim),
+                        "tdim": tdim,
+                        "nodata": None if nodata is None else float(np.asarray(nodata).ravel()[0]),
+                        "scale": scale,
+                        "offset": offset,
+                        "units": str(attrs.get("units", "1")),
+                        "long_name": str(attrs.get("long_name", n)),
+                        "packing": packing,
+                        "engine": engine,
+                    },
+                )
+            )
+    out = {}
+    for n, members in per_var.items():
+        if not members:
+            raise IngestError("variable", n, f"a variable present in the sources {paths}")
+        first = members[0]
+        for m in members[1:]:
+            _check_same_grid(n, first, m)
+        times = np.concatenate([m[1]["times"] for m in members])
+        steps = [s for m in members for s in m[1]["steps"]]
+        order = np.argsort(times, kind="stable")
+        times = times[order]
+        if times.size > 1 and (np.diff(times.astype(np.int64)) == 0).any():
+            raise IngestError("source", n, "distinct time steps across files")
+        info = first[1]
+        out[n] = RasterSource(
+            name=n,
+            kind="xarray",
+            crs_wkt=info["crs"],
+            x=info["x"],
+            y=info["y"],
+            times=times,
+            steps=tuple(steps[i] for i in order),
+            nodata=info["nodata"],
+            scale=info["scale"],
+            offset=info["offset"],
+            units=info["units"],
+            long_name=info["long_name"],
+            packing=info["packing"],
+            dims=info["dims"],
+            time_dim=info["tdim"],
+            engine=info["engine"],
+        )
+    return out
