@@ -149,7 +149,7 @@ class _Runner:
             try:
                 from distributed import Client
 
-                self.client = Client(scheduler, timeout="20s", set_as_default=False)
+                self.client = Client(scheduler, timeout="10s", set_as_default=False)
             except (OSError, TimeoutError, ValueError) as exc:
                 raise IngestError(
                     "scheduler", scheduler, f"the address of a running dask scheduler ({exc})"
@@ -339,6 +339,7 @@ def ingest(
         for lv in levels
     }
     source_text = ", ".join(Path(str(s)).name for s in sources)
+    runner = _Runner(scheduler, progress)  # an unreachable scheduler fails before writing
     try:
         writer = create_cube(
             out,
@@ -357,11 +358,13 @@ def ingest(
             extra={"method": method, "finest_level": level},
         )
     except CubeFormatError as exc:
+        runner.close()
         raise IngestError("out", out, exc.allowed, message=f"--out {out}: {exc}") from None
+    except BaseException:
+        runner.close()
+        raise
 
-    runner = None
     try:
-        runner = _Runner(scheduler, progress)
         result = IngestSummary(
             url=normalize_url(out)[1],
             cube_id=cube_id,
@@ -418,8 +421,7 @@ def ingest(
             pass
         raise
     finally:
-        if runner is not None:
-            runner.close()
+        runner.close()
     result.seconds = time.perf_counter() - t_start
     return result
 

@@ -160,10 +160,13 @@ class RasterSource:
     def read(self, step: int, rows: slice, cols: slice) -> np.ndarray:
         """Pixel values of one time step in a window, float64 with NaN for no-data."""
         path, sel = self.steps[step]
-        if self.kind == "gtiff":
-            raw = _read_gtiff(path, int(sel), rows, cols)
-        else:
-            raw = _read_xarray(self, path, sel, rows, cols)
+        try:
+            if self.kind == "gtiff":
+                raw = _read_gtiff(path, int(sel), rows, cols)
+            else:
+                raw = _read_xarray(self, path, sel, rows, cols)
+        except (OSError, RuntimeError, ValueError) as exc:
+            raise IngestError("source", path, f"pixel data that can be read ({exc})") from None
         out = raw.astype(np.float64)
         bad = ~np.isfinite(out)
         if self.nodata is not None and np.isfinite(self.nodata):
