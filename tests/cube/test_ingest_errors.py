@@ -41,7 +41,6 @@ def test_unreadable_file(tmp_path):
 
 
 def test_unknown_crs(tmp_path):
-    lon, lat = lonlat_axes(1.0, 0, 0, 10, 10)
     path = write_geotiff(
         tmp_path / "nocrs.tif", np.ones((10, 10)), west=0, north=10, step_x=1.0, crs=None
     )
