@@ -194,7 +194,7 @@ class _Runner:
 
         futures = [self.client.submit(run_task, *c, pure=False) for c in calls]
         results = []
-        for fut in as_completed(futures):
+        for fut in as_completed(futures, loop=self.client.loop):
             results.append(fut.result())
             if bar is not None:
                 bar.update(1)

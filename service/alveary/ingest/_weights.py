@@ -62,7 +62,7 @@ def stencil(depth: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def child_weights(zones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Children ``(N, 7)`` and their area weights (weight x relative area; pad 0)."""
+    """Children ``(N, 7)`` and their area weights: share x relative area (padding 0)."""
     ids, w = grid.zone_children(np.asarray(zones, dtype=np.uint64))
     ids = np.atleast_2d(ids)
     w = np.atleast_2d(np.asarray(w, dtype=np.float64)).copy()
@@ -75,14 +75,19 @@ def child_weights(zones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _recursive(zones: np.ndarray, depth: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Sparse (row, fine id, weight) of descendants through zone_children (any zone)."""
+    """Sparse (row, fine id, weight) of descendants through zone_children (any zone).
+
+    The shares (1 and 1/2) are iterated as they are; the relative area of each fine
+    zone is applied once, at the end.
+    """
     rows = np.arange(zones.size, dtype=np.int64)
     ids = zones.astype(np.uint64)
     w = np.ones(zones.size)
     for _ in range(depth):
         uniq, inv = np.unique(ids, return_inverse=True)
-        cids, cw = child_weights(uniq)
-        r = np.repeat(rows, 7)
+        cids, cw = grid.zone_children(uniq)
+        cids, cw = np.atleast_2d(cids), np.atleast_2d(np.asarray(cw, dtype=np.float64))
+        r = np.repeat(rows, cids.shape[1])
         ww = (w[:, None] * cw[inv]).ravel()
         cc = cids[inv].ravel()
         keep = ww > 0
@@ -93,6 +98,7 @@ def _recursive(zones: np.ndarray, depth: int) -> tuple[np.ndarray, np.ndarray, n
         w = np.bincount(kinv, weights=ww)
         rows = ukey // fine.size
         ids = fine[ukey % fine.size]
+    w = w * np.where(np.asarray(grid.is_pentagon(ids)), PENTAGON_AREA, 1.0)
     return rows, ids, w
 
 
