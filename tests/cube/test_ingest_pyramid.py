@@ -42,7 +42,7 @@ def test_weights_are_a_partition_of_unity():
     np.testing.assert_allclose([per_fine[f] for f in all_fine.tolist()], _area(all_fine))
     # and each zone's weights add up to its area in units of finer zones
     np.testing.assert_allclose(np.bincount(rows, w), 4.0**depth * _area(zones))
-    ids, cw = child_weights(zones)
+    _, cw = child_weights(zones)
     np.testing.assert_allclose(cw.sum(axis=1), 4.0 * _area(zones))
 
 
