@@ -31,7 +31,7 @@ def land_fraction(tmp_path_factory):
         lat = f["lat"]
         ocean = f["mask"]
     assert ocean.shape == (21600, 43200) and lat[0] == 90.0
-    b = int(round(STEP * 120))
+    b = round(STEP * 120)
     land = (~ocean).reshape(21600 // b, b, 43200 // b, b).sum(axis=(1, 3), dtype=np.uint32)
     frac = (land / float(b * b)).astype("f4")
     path = write_geotiff(
