@@ -391,28 +391,33 @@ def open_geotiffs(paths: list[str], names: list[str] | None) -> dict[str, Raster
 
 
 # -- NetCDF / Zarr through xarray ------------------------------------------------------
-_LOCAL = threading.local()
+_DS_LOCK = threading.Lock()
+_DATASETS: dict[tuple[str, str | None], Any] = {}
 
 
 def _open_ds(path: str, engine: str | None):
+    """An opened dataset, kept for the process (xarray locks its file reads itself).
+
+    Worker threads come and go (dask.distributed recycles them), so the cache is per
+    process, not per thread.
+    """
     import xarray as xr
 
-    cache = getattr(_LOCAL, "ds", None)
-    if cache is None:
-        cache = _LOCAL.ds = {}
-    ds = cache.get(path)
-    if ds is None:
-        if len(cache) > 16:
-            for old in cache.values():
-                old.close()
-            cache.clear()
-        kw = {"mask_and_scale": False, "decode_times": True}
-        if engine == "zarr":
-            ds = xr.open_zarr(path, **kw)
-        else:
-            ds = xr.open_dataset(path, engine=engine, **kw)
-        cache[path] = ds
-    return ds
+    key = (path, engine)
+    with _DS_LOCK:
+        ds = _DATASETS.get(key)
+        if ds is None:
+            if len(_DATASETS) > 32:
+                for old in _DATASETS.values():
+                    old.close()
+                _DATASETS.clear()
+            kw = {"mask_and_scale": False, "decode_times": True}
+            if engine == "zarr":
+                ds = xr.open_zarr(path, **kw)
+            else:
+                ds = xr.open_dataset(path, engine=engine, **kw)
+            _DATASETS[key] = ds
+        return ds
 
 
 def _read_xarray(src: RasterSource, path: str, sel: Any, rows: slice, cols: slice) -> np.ndarray:
