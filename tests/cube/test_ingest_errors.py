@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from cube_sources import lonlat_axes, write_geotiff, write_netcdf
 
-from alveary import IngestError
+from alveary import IngestError, grid
 from alveary.cube import open_cube
 from alveary.ingest import ingest
 
@@ -156,3 +156,64 @@ def test_cli_errors_exit_2_with_the_parameter(tmp_path, tif):
     assert done.returncode == 2
     assert "level" in done.stderr and "[0, 24]" in done.stderr
     assert "Traceback" not in done.stderr
+
+
+def test_killed_build_leaves_the_published_version(tmp_path, tif):
+    import signal
+    import time
+
+    from cube_sources import write_netcdf
+
+    out = tmp_path / "c"
+    first = ingest([tif], str(out), 3, cube_id="k", variables=["v"])
+    lon, lat = lonlat_axes(0.5)
+    times = np.arange("2024-01-01", 24, dtype="datetime64[D]")
+    data = np.random.default_rng(0).random((times.size, lat.size, lon.size)).astype("f4")
+    nc = write_netcdf(tmp_path / "big.nc", "v", data, times, lat, lon)
+    cmd = [
+        ALVEARY,
+        "ingest",
+        nc,
+        "--out",
+        str(out),
+        "--level",
+        "6",
+        "--variable",
+        "v",
+        "--method",
+        "mean",
+        "--pyramid",
+        "--cube-id",
+        "k",
+        "--time-block",
+        "4",
+    ]
+    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        deadline = time.monotonic() + 60
+        while time.monotonic() < deadline and proc.poll() is None:
+            new = [
+                p
+                for p in (out / "versions").iterdir()
+                if p.name not in (first.version, "zarr.json")
+            ]
+            if new and any((new[0] / "v" / "6" / "strips" / "c").glob("*/*/*/*")):
+                break
+            time.sleep(0.02)
+        assert proc.poll() is None, "the build finished before it could be killed"
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(timeout=10)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    cube = open_cube(str(out))
+    assert cube.version == first.version  # the pointer never moved
+    assert np.isfinite(cube.read("v", grid.zones_in_bbox(1, 1, 9, 9, 3))).all()  # whole
+    # re-running starts cleanly: the abandoned version is removed, the new one published
+    done = subprocess.run(
+        [*cmd[:-2], "--time-block", "16"], capture_output=True, text=True, timeout=300, check=False
+    )
+    assert done.returncode == 0, done.stderr
+    assert cube.refresh() and cube.levels[-1] == 6
+    left = {p.name for p in (out / "versions").iterdir()} - {"zarr.json"}
+    assert left == {first.version, cube.version}
