@@ -72,7 +72,10 @@ def storage(tmp: Path) -> None:
     cube_bytes = _du(out / "versions" / cube.version / "t")
     nlat, nlon = round(180 / step), round(360 / step)
     raster = zarr.create_array(
-        str(tmp / "latlon.zarr"), shape=(1, nlat, nlon), chunks=(1, 64, 64), dtype="f4",
+        str(tmp / "latlon.zarr"),
+        shape=(1, nlat, nlon),
+        chunks=(1, 64, 64),
+        dtype="f4",
         compressors=[BloscCodec(cname="zstd", clevel=5, shuffle="shuffle", typesize=4)],
         zarr_format=3,
     )
@@ -85,8 +88,10 @@ def storage(tmp: Path) -> None:
     print(f"values stored / zones          {stored_values / zones:.6f}  (goal 1)")
     print(f"lat/lon raster: step {step:.4f} deg, cells {nlat * nlon}")
     print(f"raster cells / zones           {nlat * nlon / zones:.3f}")
-    print(f"bytes: cube {cube_bytes}, raster {raster_bytes}, "
-          f"raster / cube {raster_bytes / cube_bytes:.3f}")
+    print(
+        f"bytes: cube {cube_bytes}, raster {raster_bytes}, "
+        f"raster / cube {raster_bytes / cube_bytes:.3f}"
+    )
 
 
 def throughput(tmp: Path) -> None:
@@ -100,16 +105,30 @@ def throughput(tmp: Path) -> None:
         s = ingest([src], str(tmp / f"tp-threads-{method}"), 7, method=method, **kw)
         dt = time.perf_counter() - t0
         zps = s.total_zones / dt
-        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                          host="127.0.0.1", dashboard_address=None, silence_logs=40) as cl:
+        with LocalCluster(
+            n_workers=2,
+            threads_per_worker=1,
+            processes=True,
+            host="127.0.0.1",
+            dashboard_address=None,
+            silence_logs=40,
+        ) as cl:
             t0 = time.perf_counter()
-            s2 = ingest([src], str(tmp / f"tp-cluster-{method}"), 7, method=method,
-                        scheduler=cl.scheduler_address, **kw)
+            s2 = ingest(
+                [src],
+                str(tmp / f"tp-cluster-{method}"),
+                7,
+                method=method,
+                scheduler=cl.scheduler_address,
+                **kw,
+            )
             dt2 = time.perf_counter() - t0
         zps2 = s2.total_zones / dt2
-        print(f"{method:8s} threads: {zps:10.0f} zones/s ({zps * 8:10.0f} zone-steps/s, "
-              f"{dt:.2f} s); 2-process cluster: {zps2:10.0f} zones/s ({dt2:.2f} s); "
-              f"cluster/threads {zps2 / zps:.2f}")
+        print(
+            f"{method:8s} threads: {zps:10.0f} zones/s ({zps * 8:10.0f} zone-steps/s, "
+            f"{dt:.2f} s); 2-process cluster: {zps2:10.0f} zones/s ({dt2:.2f} s); "
+            f"cluster/threads {zps2 / zps:.2f}"
+        )
 
 
 def _minimal_chunks(cube, zones, t0, t1) -> int:
@@ -136,9 +155,15 @@ def requests(tmp: Path) -> None:
         opts = server.storage_options()
         level = 9
         times = np.arange("2023-01-01", "2024-01-01", dtype="datetime64[D]")
-        w = create_cube(url, cube_id="bench", times=times, levels=[level],
-                        variables={"sm": {"units": "1"}}, storage_options=opts,
-                        chunks=ChunkShape(32, 64, 64))
+        w = create_cube(
+            url,
+            cube_id="bench",
+            times=times,
+            levels=[level],
+            variables={"sm": {"units": "1"}},
+            storage_options=opts,
+            chunks=ChunkShape(32, 64, 64),
+        )
         zones = grid.zones_in_bbox(5.0, 40.0, 25.0, 55.0, level)
         lat, lon = grid.zone_to_point(zones)
         vals = _field(np.asarray(lat)[None, :], np.asarray(lon)[None, :]) + np.arange(365)[:, None]
@@ -161,8 +186,10 @@ def requests(tmp: Path) -> None:
             reqs = server.requests(since=mark)
             gets = sum(1 for r in reqs if r.method == "GET" and not r.is_listing)
             other = len(reqs) - gets
-            print(f"{name:24s} GETs {gets:3d}, minimal chunks {minimal:3d}, "
-                  f"GETs/minimal {gets / minimal:.2f}, other requests {other}")
+            print(
+                f"{name:24s} GETs {gets:3d}, minimal chunks {minimal:3d}, "
+                f"GETs/minimal {gets / minimal:.2f}, other requests {other}"
+            )
 
 
 def main() -> int:

@@ -149,6 +149,25 @@ class ChunkSink:
         arr[sel] = raw[:, None, :, :]
         return int(valid.any(axis=0).sum())
 
+    def read(self, variable: str, level: int, zones, t0: int, t1: int) -> np.ndarray:
+        """Read back values ``(t1 - t0, zone)`` already written to this version.
+
+        Used to build coarser levels from finer ones before anything is published.
+        """
+        from alveary import grid
+
+        info = self.variables[variable]
+        lay = self.layouts[level]
+        zones = np.asarray(zones, dtype=np.uint64).ravel()
+        _, region, i, j = grid.zone_to_index(zones)
+        plan = plan_cells(lay, f"{variable}/{level}", region, i, j, slice(t0, t1), info.itemsize)
+        out = np.full(plan.shape, np.nan)
+        for cr in plan.reads:
+            arr = _sink_array(self.url, self.storage_options, self.version, cr.array)
+            data = np.asarray(arr[cr.selection])
+            out[cr.out_time, cr.columns] = info.decode(data[(cr.in_time, *cr.cells)])
+        return out
+
     def write_apex_chunk(self, variable: str, level: int, tblock: int, values) -> int:
         """Write one apex chunk from float values ``(t, 2)``; returns zones with data."""
         info = self.variables[variable]
