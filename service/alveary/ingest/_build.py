@@ -308,6 +308,11 @@ def ingest(
         raise IngestError("pyramid_min_level", pyramid_min_level, f"an integer in [0, {level}]")
     if not sources:
         raise IngestError("sources", sources, "one or more source files")
+    sb, tb = int(spatial_block), int(time_block)
+    if sb < 1 or sb & (sb - 1):
+        raise IngestError("spatial_block", spatial_block, "a power of two, e.g. 64")
+    if tb < 1:
+        raise IngestError("time_block", time_block, "an integer >= 1")
     try:
         cube_id = check_cube_id(cube_id or _default_id(out))
     except InvalidInput as exc:
