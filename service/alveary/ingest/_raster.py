@@ -133,7 +133,7 @@ class RasterSource:
 
     def pixel_index(self, lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Row and column of the pixel holding each point (-1 outside the raster)."""
-        from pyproj import CRS, Transformer
+        from pyproj import CRS
 
         crs = CRS.from_wkt(self.crs_wkt)
         lat = np.asarray(lat, dtype=np.float64)
@@ -153,7 +153,6 @@ class RasterSource:
         bad = (col < 0) | (row < 0)
         col[bad] = -1
         row[bad] = -1
-        del Transformer
         return row, col
 
     # -- values ----------------------------------------------------------------------
