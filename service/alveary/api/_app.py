@@ -9,6 +9,7 @@ from typing import Any
 from fastapi import FastAPI
 from fastapi.middleware.cors import CORSMiddleware
 
+from alveary.api._answers import AnswerFrontMiddleware
 from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_openapi
 from alveary.api._problem import install_handlers, problem_response
@@ -115,6 +116,12 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.include_router(cubes_router)
     app.include_router(zones_router)
     install_openapi(app)
+    app.add_middleware(
+        AnswerFrontMiddleware,
+        cache=service.answers,
+        current_version=service.current_version,
+        headers=service.headers,
+    )
     if settings.cors_origins:
         app.add_middleware(
             CORSMiddleware,

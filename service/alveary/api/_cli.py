@@ -22,6 +22,7 @@ _OPTIONS: tuple[tuple[str, str, Any, str], ...] = (
     ("--port", "port", int, "port (default 8000)"),
     ("--workers", "workers", int, "worker processes (default 1)"),
     ("--cache-bytes", "cache_bytes", int, "decoded-chunk cache per worker, bytes"),
+    ("--answer-cache-bytes", "answer_cache_bytes", int, "encoded-answer cache per worker, bytes"),
     ("--max-age", "max_age", int, "Cache-Control max-age of answers, seconds"),
     ("--refresh-interval", "refresh_interval", float, "seconds between cube version checks"),
     ("--deadline", "deadline", float, "request deadline for store reads, seconds"),

@@ -31,9 +31,15 @@ def _counter(obj: Any, *names: str) -> float:
 class _StoreCollector:
     """Reads I/O counters of the cubes and the chunk cache at scrape time."""
 
-    def __init__(self, cubes: Callable[[], list[tuple[str, Any]]], cache: Callable[[], Any]):
+    def __init__(
+        self,
+        cubes: Callable[[], list[tuple[str, Any]]],
+        cache: Callable[[], Any],
+        answers: Callable[[], Any],
+    ):
         self._cubes = cubes
         self._cache = cache
+        self._answers = answers
 
     def collect(self):
         gets = CounterMetricFamily(
@@ -66,12 +72,28 @@ class _StoreCollector:
         yield misses
         yield held
         yield limit
+        answers = self._answers()
+        a_hits = CounterMetricFamily("alveary_answer_cache_hits", "Answers served from the cache.")
+        a_miss = CounterMetricFamily("alveary_answer_cache_misses", "Answers computed.")
+        a_held = GaugeMetricFamily("alveary_answer_cache_bytes", "Bytes of cached answers.")
+        if answers is not None:
+            a_hits.add_metric([], _counter(answers, "hits"))
+            a_miss.add_metric([], _counter(answers, "misses"))
+            a_held.add_metric([], _counter(answers, "bytes"))
+        yield a_hits
+        yield a_miss
+        yield a_held
 
 
 class Metrics:
     """The app's metrics and their registry."""
 
-    def __init__(self, cubes: Callable[[], list[tuple[str, Any]]], cache: Callable[[], Any]):
+    def __init__(
+        self,
+        cubes: Callable[[], list[tuple[str, Any]]],
+        cache: Callable[[], Any],
+        answers: Callable[[], Any] = lambda: None,
+    ):
         self.registry = CollectorRegistry(auto_describe=True)
         self.requests = Counter(
             "alveary_requests",
@@ -86,7 +108,7 @@ class Metrics:
             buckets=_BUCKETS,
             registry=self.registry,
         )
-        self.registry.register(_StoreCollector(cubes, cache))
+        self.registry.register(_StoreCollector(cubes, cache, answers))
 
     def render(self) -> bytes:
         return generate_latest(self.registry)
@@ -120,5 +142,5 @@ class MetricsMiddleware:
             await self.app(scope, receive, send_wrapper)
         finally:
             route = scope.get("route")
-            operation = getattr(route, "operation_id", None) or getattr(route, "name", None)
+            operation = scope.get("alveary.operation") or getattr(route, "operation_id", None)
             self.metrics.observe(operation or "unmatched", status, time.perf_counter() - start)

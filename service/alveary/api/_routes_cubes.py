@@ -11,6 +11,8 @@ from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from alveary._errors import InvalidInput, LimitExceeded
+from alveary.api._answers import request_key
+from alveary.api._encode import negotiate
 from alveary.api._schemas import (
     CubeList,
     CubeMeta,
@@ -19,12 +21,17 @@ from alveary.api._schemas import (
     geometry_body_schema,
 )
 from alveary.api.deps import (
+    CUBE_FORMATS,
+    AcceptHeader,
     BboxParam,
     CubeId,
+    DatetimeParam,
     FormatDep,
+    FormatParam,
     IfNoneMatch,
     KParam,
     LatParam,
+    LevelParam,
     LonParam,
     MetersParam,
     NearestParam,
@@ -33,7 +40,9 @@ from alveary.api.deps import (
     SelectionDep,
     ServiceDep,
     StatsDep,
+    VarsParam,
     ZoneParam,
+    make_selection,
 )
 from alveary.query import (
     BboxQuery,
@@ -155,15 +164,23 @@ async def get_cube(request: Request, service: ServiceDep, cube: CubeId) -> Respo
     responses=_OTHER_FORMATS,
 )
 async def query_point(
-    service: ServiceDep,
+    request: Request,
     cube: CubeId,
     lat: LatParam,
     lon: LonParam,
-    sel: SelectionDep,
-    fmt: FormatDep,
+    level: LevelParam = None,
+    vars_: VarsParam = None,
+    time: DatetimeParam = None,
+    f: FormatParam = None,
+    accept: AcceptHeader = None,
     if_none_match: IfNoneMatch = None,
 ) -> Response:
-    return await service.answer(cube, PointQuery(lat, lon, sel), fmt, if_none_match)
+    # Parameters are flat here (no sub-dependencies): this is the hot path of dashboards.
+    service = request.app.state.service
+    sel = make_selection(level, vars_, time)
+    fmt = negotiate(f, accept, CUBE_FORMATS)
+    query = PointQuery(lat, lon, sel)
+    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
 
 
 @router.get(
@@ -179,6 +196,7 @@ async def query_point(
     responses=_OTHER_FORMATS,
 )
 async def query_disk(
+    request: Request,
     service: ServiceDep,
     cube: CubeId,
     k: KParam,
@@ -191,7 +209,7 @@ async def query_disk(
 ) -> Response:
     zone_id = parse_zone(zone, "zone") if zone is not None else None
     query = DiskQuery(k=k, lat=lat, lon=lon, zone=zone_id, selection=sel)
-    return await service.answer(cube, query, fmt, if_none_match)
+    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
 
 
 @router.get(
@@ -207,6 +225,7 @@ async def query_disk(
     responses=_OTHER_FORMATS,
 )
 async def query_radius(
+    request: Request,
     service: ServiceDep,
     cube: CubeId,
     lat: LatParam,
@@ -218,7 +237,7 @@ async def query_radius(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     query = RadiusQuery(lat, lon, meters, nearest, sel)
-    return await service.answer(cube, query, fmt, if_none_match)
+    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
 
 
 _AREA_DOC = (
@@ -238,6 +257,7 @@ _AREA_DOC = (
     responses=_OTHER_FORMATS,
 )
 async def query_bbox(
+    request: Request,
     service: ServiceDep,
     cube: CubeId,
     bbox: BboxParam,
@@ -251,7 +271,8 @@ async def query_bbox(
     geometry = None
     if stats and fmt == "geojson":
         geometry = _bbox_geometry(west, south, east, north)
-    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry, key=key)
 
 
 def _bbox_geometry(west: float, south: float, east: float, north: float) -> dict[str, Any]:

@@ -16,8 +16,8 @@ from typing import Any
 import anyio.to_thread
 from starlette.responses import Response
 
-from alveary._errors import StoreUnavailable
-from alveary.api._encode import FORMATS, encode
+from alveary.api._answers import Answer, AnswerCache
+from alveary.api._encode import encode
 from alveary.api._metrics import Metrics
 from alveary.api._settings import Settings
 from alveary.query import Catalog, PointQuery, Query, execute, make_plan, resolve
@@ -72,7 +72,10 @@ class Service:
         self.limits = settings.limits
         self.catalog = catalog if catalog is not None else Catalog(settings.sources())
         self.cache = _make_cache(settings.cache_bytes)
-        self.metrics = Metrics(self._cube_list, lambda: self.cache)
+        self.answers = AnswerCache(
+            settings.answer_cache_bytes, max(settings.answer_cache_bytes // 16, 1)
+        )
+        self.metrics = Metrics(self._cube_list, lambda: self.cache, lambda: self.answers)
         self.cache_control = f"public, max-age={settings.max_age}"
         self._refresher: asyncio.Task | None = None
 
@@ -107,6 +110,13 @@ class Service:
     def headers(self, etag: str) -> dict[str, str]:
         return {"ETag": etag, "Cache-Control": self.cache_control, "Vary": "Accept"}
 
+    def current_version(self, cube_id: str) -> str | None:
+        """The version a cube serves now (None if it is not open)."""
+        try:
+            return str(self.catalog.get(cube_id).version)
+        except Exception:
+            return None
+
     async def answer(
         self,
         cube_id: str,
@@ -115,13 +125,23 @@ class Service:
         if_none_match: str | None,
         *,
         geometry: dict[str, Any] | None = None,
+        key: str | None = None,
     ) -> Response:
-        """Run one cube query end to end and build the HTTP response."""
+        """Run one cube query end to end and build the HTTP response.
+
+        ``key`` is the raw request's cache key (GET requests), for the answer front.
+        """
         resolved = resolve(self.catalog, cube_id, query)
         etag = etag_for(resolved.key, fmt)
         headers = self.headers(etag)
         if matches(if_none_match, etag):
             return Response(status_code=304, headers=headers)
+        caching = self.answers.max_bytes > 0
+        cached = self.answers.get(etag) if caching else None
+        if cached is not None:
+            if key is not None:
+                self.answers.remember(key, etag)
+            return Response(cached.body, media_type=cached.media_type, headers=headers)
         if isinstance(query, PointQuery):
             plan = make_plan(resolved, self.limits)
         else:
@@ -134,17 +154,13 @@ class Service:
             body, media = await anyio.to_thread.run_sync(
                 lambda: encode(result, fmt, geometry=geometry)
             )
+        if caching:
+            operation = f"query_{query.op}"
+            answer = Answer(cube_id, resolved.version, etag, body, media, operation)
+            self.answers.put(answer, key)
         return Response(body, media_type=media, headers=headers)
 
     def ready(self) -> dict[str, str | None]:
         """Check every store now (blocking: run off the loop); id -> None or error name."""
         self.catalog.refresh()
         return self.catalog.status()
-
-    @staticmethod
-    def media(fmt: str) -> str:
-        return FORMATS[fmt]
-
-
-def unavailable(cube_id: str) -> StoreUnavailable:
-    return StoreUnavailable(f"the store of cube {cube_id!r} cannot be reached")

@@ -80,6 +80,9 @@ class Settings(BaseSettings):
     log_level: str = "info"
 
     cache_bytes: int = Field(256 * 2**20, ge=0, description="Decoded-chunk cache per process.")
+    answer_cache_bytes: int = Field(
+        32 * 2**20, ge=0, description="Cache of encoded answers (by ETag) per process; 0: off."
+    )
     max_age: int = Field(60, ge=0, description="Cache-Control max-age of answers, seconds.")
     refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
     deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")

@@ -38,7 +38,7 @@ __all__ = [
 ]
 
 
-def get_service(request: Request) -> Service:
+async def get_service(request: Request) -> Service:
     return request.app.state.service
 
 
@@ -160,21 +160,29 @@ AcceptHeader = Annotated[str | None, Header(include_in_schema=False)]
 IfNoneMatch = Annotated[str | None, Header(include_in_schema=False)]
 
 
-def selection(
+def make_selection(level: int | None, vars_: str | None, time: str | None) -> Selection:
+    """Level, variables and time of a cube query, from their parameters."""
+    return Selection(level=level, variables=parse_vars(vars_), time=parse_datetime(time))
+
+
+async def selection(
     level: LevelParam = None, vars_: VarsParam = None, time: DatetimeParam = None
 ) -> Selection:
     """Level, variables and time of a cube query."""
-    return Selection(level=level, variables=parse_vars(vars_), time=parse_datetime(time))
+    return make_selection(level, vars_, time)
 
 
 SelectionDep = Annotated[Selection, Depends(selection)]
 
 
-def cube_format(f: FormatParam = None, accept: AcceptHeader = None) -> str:
-    return negotiate(f, accept, ("json", "geojson", "arrow", "csv"))
+CUBE_FORMATS = ("json", "geojson", "arrow", "csv")
 
 
-def zone_format(f: ZoneFormatParam = None, accept: AcceptHeader = None) -> str:
+async def cube_format(f: FormatParam = None, accept: AcceptHeader = None) -> str:
+    return negotiate(f, accept, CUBE_FORMATS)
+
+
+async def zone_format(f: ZoneFormatParam = None, accept: AcceptHeader = None) -> str:
     return negotiate(f, accept, ("json", "geojson"))
 
 
@@ -182,7 +190,7 @@ FormatDep = Annotated[str, Depends(cube_format)]
 ZoneFormatDep = Annotated[str, Depends(zone_format)]
 
 
-def stats_names(stats: StatsParam = None) -> tuple[str, ...]:
+async def stats_names(stats: StatsParam = None) -> tuple[str, ...]:
     return parse_stats(stats)
 
 
