@@ -47,7 +47,7 @@ def test_single_zone_single_block_is_one_get(s3_server, s3_cube):
     assert len(plan) == 1
     mark = s3_server.mark()
     values = cube.read("sm", zone, "2023-02-01", "2023-02-01")
-    reqs = s3_server.requests(since=mark)
+    reqs = s3_server.requests(since=mark, bucket=url)
     assert np.isfinite(values).all()
     assert [(r.method, r.path.split("/", 2)[2]) for r in reqs] == [
         ("GET", f"year/versions/{cube.version}/{plan.keys[0]}")
@@ -63,7 +63,7 @@ def test_disk_read_gets_exactly_the_planned_chunks(s3_server, s3_cube):
     plan = cube.plan("sm", disk, "2023-03-01", "2023-03-10")
     mark = s3_server.mark()
     cube.read("sm", disk, "2023-03-01", "2023-03-10")
-    reqs = s3_server.requests(since=mark)
+    reqs = s3_server.requests(since=mark, bucket=url)
     assert not [r for r in reqs if r.method == "HEAD" or r.is_listing]
     got = sorted(r.path.split(f"/versions/{cube.version}/", 1)[1] for r in _gets(reqs))
     assert got == sorted(plan.keys)
@@ -79,7 +79,7 @@ def test_year_series_and_missing_chunks(s3_server, s3_cube):
         assert len(plan) == 12  # ceil(365 / 32) time blocks
         mark = s3_server.mark()
         series = cube.read("sm", zone)
-        reqs = s3_server.requests(since=mark)
+        reqs = s3_server.requests(since=mark, bucket=url)
         assert series.shape == (365, 1)
         assert bool(np.isfinite(series).all()) is finite
         assert len(reqs) == len(plan) and all(r.method == "GET" for r in reqs)

@@ -217,6 +217,14 @@ class S3Server:
             out.append(S3Request(m.group("method"), path, query, int(m.group("status"))))
         return out
 
-    def requests(self, since: int = 0) -> list[S3Request]:
-        """Requests logged after position ``since`` (see :meth:`mark`)."""
-        return self._parse(self._settled_lines())[since:]
+    def requests(self, since: int = 0, bucket: str | None = None) -> list[S3Request]:
+        """Requests logged after position ``since`` (see :meth:`mark`).
+
+        The server is shared by the whole test session; pass ``bucket`` (a name or an
+        ``s3://`` URL) to keep only the requests to that bucket.
+        """
+        reqs = self._parse(self._settled_lines())[since:]
+        if bucket is not None:
+            name = bucket.removeprefix("s3://").split("/", 1)[0]
+            reqs = [r for r in reqs if r.path.strip("/").split("/", 1)[0] == name]
+        return reqs

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import re
 import threading
+import warnings
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
@@ -412,7 +413,9 @@ def _open_ds(path: str, engine: str | None):
                 _DATASETS.clear()
             kw = {"mask_and_scale": False, "decode_times": True}
             if engine == "zarr":
-                ds = xr.open_zarr(path, **kw)
+                with warnings.catch_warnings():  # sources without consolidated metadata
+                    warnings.simplefilter("ignore", RuntimeWarning)
+                    ds = xr.open_zarr(path, **kw)
             else:
                 ds = xr.open_dataset(path, engine=engine, **kw)
             _DATASETS[key] = ds
