@@ -345,3 +345,27 @@ def test_cors_allow_list(analytic_store):
             assert ok.headers["access-control-allow-origin"] == "https://dash.example"
             other = c.get("/cubes", headers={"Origin": "https://elsewhere.example"})
             assert "access-control-allow-origin" not in other.headers
+
+
+def test_repeats_come_from_the_answer_cache(http, s3_server):
+    from prometheus_client.parser import text_string_to_metric_families
+
+    def answer_hits():
+        text = http.get("/metrics").text
+        for family in text_string_to_metric_families(text):
+            if family.name == "alveary_answer_cache_hits":
+                return family.samples[0].value
+        raise AssertionError("no answer cache metric")
+
+    params = {"lat": -12.5, "lon": 131.0, "k": 1}
+    first = http.get("/cubes/analytic/disk", params=params)
+    hits = answer_hits()
+    mark = s3_server.mark()
+    again = http.get("/cubes/analytic/disk", params=params)
+    assert again.content == first.content and again.headers["etag"] == first.headers["etag"]
+    assert again.headers["content-type"] == first.headers["content-type"]
+    assert answer_hits() == hits + 1
+    assert chunk_gets(s3_server, mark) == []
+    # Another Accept is another answer, not the cached JSON.
+    csv = http.get("/cubes/analytic/disk", params=params, headers={"Accept": "text/csv"})
+    assert csv.headers["content-type"].startswith("text/csv")

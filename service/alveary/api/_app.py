@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import gc
 from collections.abc import AsyncIterator, Callable
 from typing import Any
 
@@ -98,6 +99,10 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     @contextlib.asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
         await service.start()
+        # Objects alive after start-up (modules, metadata) live as long as the process:
+        # keep them out of every later garbage-collection pass (common server practice).
+        gc.collect()
+        gc.freeze()
         try:
             yield
         finally:
