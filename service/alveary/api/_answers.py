@@ -16,7 +16,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["Answer", "AnswerCache", "AnswerFrontMiddleware", "request_key"]
+__all__ = ["Answer", "AnswerCache", "AnswerFrontMiddleware", "PlanCache", "request_key"]
 
 
 @dataclass(frozen=True)
@@ -164,3 +164,42 @@ class AnswerFrontMiddleware:
         ]
         await send({"type": "http.response.start", "status": 200, "headers": headers})
         await send({"type": "http.response.body", "body": answer.body})
+
+
+class PlanCache:
+    """LRU of query plans by normalised query (which includes the cube version).
+
+    Plans are pure, so a repeated query (the same polygon every minute) skips the zone
+    enumeration and chunk arithmetic. Bounded by the total number of answer rows' zones.
+
+    >>> cache = PlanCache(max_zones=10)
+    >>> class P:  # a stand-in with the one attribute the cache looks at
+    ...     def __init__(self, n): self.zones = [0] * n
+    >>> cache.put("a", P(6)); cache.put("b", P(6))
+    >>> cache.get("a") is None, cache.get("b") is not None
+    (True, True)
+    """
+
+    def __init__(self, max_zones: int) -> None:
+        self.max_zones = int(max_zones)
+        self._items: OrderedDict[str, Any] = OrderedDict()
+        self.zones = 0
+
+    def get(self, key: str) -> Any:
+        plan = self._items.get(key)
+        if plan is not None:
+            self._items.move_to_end(key)
+        return plan
+
+    def put(self, key: str, plan: Any) -> None:
+        size = len(plan.zones)
+        if size > self.max_zones:
+            return
+        old = self._items.pop(key, None)
+        if old is not None:
+            self.zones -= len(old.zones)
+        self._items[key] = plan
+        self.zones += size
+        while self.zones > self.max_zones:
+            _, dropped = self._items.popitem(last=False)
+            self.zones -= len(dropped.zones)

@@ -16,7 +16,7 @@ from typing import Any
 import anyio.to_thread
 from starlette.responses import Response
 
-from alveary.api._answers import Answer, AnswerCache
+from alveary.api._answers import Answer, AnswerCache, PlanCache
 from alveary.api._encode import encode
 from alveary.api._metrics import Metrics
 from alveary.api._settings import Settings
@@ -75,6 +75,7 @@ class Service:
         self.answers = AnswerCache(
             settings.answer_cache_bytes, max(settings.answer_cache_bytes // 16, 1)
         )
+        self.plans = PlanCache(settings.plan_cache_zones)
         self.metrics = Metrics(self._cube_list, lambda: self.cache, lambda: self.answers)
         self.cache_control = f"public, max-age={settings.max_age}"
         self._refresher: asyncio.Task | None = None
@@ -142,10 +143,13 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
-        if isinstance(query, PointQuery):
-            plan = make_plan(resolved, self.limits)
-        else:
-            plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
+        plan = self.plans.get(resolved.key)
+        if plan is None:
+            if isinstance(query, PointQuery):
+                plan = make_plan(resolved, self.limits)
+            else:
+                plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
+            self.plans.put(resolved.key, plan)
         result = await execute(plan, self.cache, deadline=self.settings.deadline)
         rows = result.zones.size * max(result.times.size, 1) if hasattr(result, "zones") else 0
         if rows <= _INLINE_ROWS:
