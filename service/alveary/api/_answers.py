@@ -166,40 +166,57 @@ class AnswerFrontMiddleware:
         await send({"type": "http.response.body", "body": answer.body})
 
 
+def plan_nbytes(plan: Any) -> int:
+    """An estimate of the memory a plan holds: its arrays plus per-object overheads."""
+    total = 4096
+    for name in ("zones", "read_zones", "take"):
+        arr = getattr(plan, name, None)
+        total += int(getattr(arr, "nbytes", 0))
+    for arr in getattr(plan, "extra", {}).values():
+        total += int(arr.nbytes)
+    for read_plan in getattr(plan, "reads", {}).values():
+        for chunk in getattr(read_plan, "reads", ()):
+            total += 512 + int(chunk.columns.nbytes) + sum(int(c.nbytes) for c in chunk.cells)
+    return total
+
+
 class PlanCache:
     """LRU of query plans by normalised query (which includes the cube version).
 
-    Plans are pure, so a repeated query (the same polygon every minute) skips the zone
-    enumeration and chunk arithmetic. Bounded by the total number of answer rows' zones.
+    Plans are pure, so a repeated area query (the same polygon every minute) skips the
+    zone enumeration and chunk arithmetic. Bounded by the plans' estimated bytes.
 
-    >>> cache = PlanCache(max_zones=10)
-    >>> class P:  # a stand-in with the one attribute the cache looks at
-    ...     def __init__(self, n): self.zones = [0] * n
-    >>> cache.put("a", P(6)); cache.put("b", P(6))
-    >>> cache.get("a") is None, cache.get("b") is not None
+    >>> import numpy as np
+    >>> class P:  # a stand-in with the attributes the size estimate reads
+    ...     def __init__(self, n): self.zones = np.zeros(n, dtype=np.uint64)
+    >>> cache = PlanCache(max_bytes=60_000)
+    >>> for key in "abcde":
+    ...     cache.put(key, P(1000))  # about 12 KB each: the fifth evicts the first
+    >>> cache.get("a") is None, cache.get("e") is not None
     (True, True)
     """
 
-    def __init__(self, max_zones: int) -> None:
-        self.max_zones = int(max_zones)
-        self._items: OrderedDict[str, Any] = OrderedDict()
-        self.zones = 0
+    def __init__(self, max_bytes: int) -> None:
+        self.max_bytes = int(max_bytes)
+        self._items: OrderedDict[str, tuple[Any, int]] = OrderedDict()
+        self.bytes = 0
 
     def get(self, key: str) -> Any:
-        plan = self._items.get(key)
-        if plan is not None:
-            self._items.move_to_end(key)
-        return plan
+        item = self._items.get(key)
+        if item is None:
+            return None
+        self._items.move_to_end(key)
+        return item[0]
 
     def put(self, key: str, plan: Any) -> None:
-        size = len(plan.zones)
-        if size > self.max_zones:
+        size = plan_nbytes(plan)
+        if size > self.max_bytes // 4:
             return
         old = self._items.pop(key, None)
         if old is not None:
-            self.zones -= len(old.zones)
-        self._items[key] = plan
-        self.zones += size
-        while self.zones > self.max_zones:
-            _, dropped = self._items.popitem(last=False)
-            self.zones -= len(dropped.zones)
+            self.bytes -= old[1]
+        self._items[key] = (plan, size)
+        self.bytes += size
+        while self.bytes > self.max_bytes:
+            _, (_, dropped) = self._items.popitem(last=False)
+            self.bytes -= dropped

@@ -23,7 +23,7 @@ _OPTIONS: tuple[tuple[str, str, Any, str], ...] = (
     ("--workers", "workers", int, "worker processes (default 1)"),
     ("--cache-bytes", "cache_bytes", int, "decoded-chunk cache per worker, bytes"),
     ("--answer-cache-bytes", "answer_cache_bytes", int, "encoded-answer cache per worker, bytes"),
-    ("--plan-cache-zones", "plan_cache_zones", int, "query plans kept for repeats, in zones"),
+    ("--plan-cache-bytes", "plan_cache_bytes", int, "plans of area queries kept, bytes"),
     ("--max-age", "max_age", int, "Cache-Control max-age of answers, seconds"),
     ("--refresh-interval", "refresh_interval", float, "seconds between cube version checks"),
     ("--deadline", "deadline", float, "request deadline for store reads, seconds"),

@@ -20,7 +20,16 @@ from alveary.api._answers import Answer, AnswerCache, PlanCache
 from alveary.api._encode import encode
 from alveary.api._metrics import Metrics
 from alveary.api._settings import Settings
-from alveary.query import Catalog, PointQuery, Query, execute, make_plan, resolve
+from alveary.query import (
+    BboxQuery,
+    Catalog,
+    PointQuery,
+    PolygonQuery,
+    Query,
+    execute,
+    make_plan,
+    resolve,
+)
 
 __all__ = ["Service", "etag_for", "matches"]
 
@@ -75,7 +84,7 @@ class Service:
         self.answers = AnswerCache(
             settings.answer_cache_bytes, max(settings.answer_cache_bytes // 16, 1)
         )
-        self.plans = PlanCache(settings.plan_cache_zones)
+        self.plans = PlanCache(settings.plan_cache_bytes)
         self.metrics = Metrics(self._cube_list, lambda: self.cache, lambda: self.answers)
         self.cache_control = f"public, max-age={settings.max_age}"
         self._refresher: asyncio.Task | None = None
@@ -143,13 +152,16 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
-        plan = self.plans.get(resolved.key)
+        # Area queries enumerate many zones: their plans are kept for repeats.
+        keep = isinstance(query, BboxQuery | PolygonQuery) and self.plans.max_bytes > 0
+        plan = self.plans.get(resolved.key) if keep else None
         if plan is None:
             if isinstance(query, PointQuery):
                 plan = make_plan(resolved, self.limits)
             else:
                 plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
-            self.plans.put(resolved.key, plan)
+            if keep:
+                self.plans.put(resolved.key, plan)
         result = await execute(plan, self.cache, deadline=self.settings.deadline)
         rows = result.zones.size * max(result.times.size, 1) if hasattr(result, "zones") else 0
         if rows <= _INLINE_ROWS:

@@ -83,8 +83,8 @@ class Settings(BaseSettings):
     answer_cache_bytes: int = Field(
         32 * 2**20, ge=0, description="Cache of encoded answers (by ETag) per process; 0: off."
     )
-    plan_cache_zones: int = Field(
-        500_000, ge=0, description="Query plans kept for repeats, counted in zones; 0: off."
+    plan_cache_bytes: int = Field(
+        32 * 2**20, ge=0, description="Plans of area queries kept for repeats; 0: off."
     )
     max_age: int = Field(60, ge=0, description="Cache-Control max-age of answers, seconds.")
     refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
