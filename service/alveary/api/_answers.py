@@ -63,7 +63,7 @@ class AnswerCache:
     (True, True, 6)
     """
 
-    def __init__(self, max_bytes: int, max_entry_bytes: int | None = None, max_keys: int = 100_000):
+    def __init__(self, max_bytes: int, max_entry_bytes: int | None = None, max_keys: int = 10_000):
         self.max_bytes = int(max_bytes)
         self.max_entry_bytes = int(max_entry_bytes if max_entry_bytes is not None else max_bytes)
         self.max_keys = int(max_keys)
