@@ -15,6 +15,12 @@ from __future__ import annotations
 
 import numpy as np
 
+
+def _clip(x, lo, hi):
+    """np.clip without its wrapper's overhead (it dominates for scalars)."""
+    return np.minimum(np.maximum(x, lo), hi)
+
+
 # WGS84 defining constants (NGA.STND.0036, common practice).
 WGS84_A = 6378137.0
 WGS84_F = 1.0 / 298.257223563
@@ -48,7 +54,7 @@ def _half_colat(lat_deg: np.ndarray) -> np.ndarray:
 def _beta_half_colat(lat: np.ndarray) -> np.ndarray:
     """Half the authalic colatitude of |lat| (radians)."""
     u = 2.0 * np.sin(_half_colat(lat)) ** 2
-    return np.arcsin(np.sqrt(np.clip(_gap(u) / (2.0 * _QP), 0.0, 1.0)))
+    return np.arcsin(np.sqrt(_clip(_gap(u) / (2.0 * _QP), 0.0, 1.0)))
 
 
 def geodetic_to_authalic(lat: np.ndarray) -> np.ndarray:
@@ -76,7 +82,7 @@ def authalic_to_geodetic(beta: np.ndarray) -> np.ndarray:
     u = target * (1.0 - _E2) / 2.0  # exact slope at the pole
     for _ in range(4):
         w = 1.0 - _E2 * (1.0 - u) ** 2
-        u = np.clip(u - (_gap(u) - target) * w * w / (2.0 * (1.0 - _E2)), 0.0, 1.0)
+        u = _clip(u - (_gap(u) - target) * w * w / (2.0 * (1.0 - _E2)), 0.0, 1.0)
     colat = 2.0 * np.arcsin(np.sqrt(u / 2.0))
     return np.copysign(90.0 - np.degrees(colat), beta)
 

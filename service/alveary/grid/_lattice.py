@@ -167,9 +167,11 @@ def ids_to_xyz(ids: np.ndarray) -> np.ndarray:
     level, strip, a, b = ids_to_chart(ids)
     n = np.left_shift(1, level).astype(np.float64)
     xyz = chart_to_xyz(strip, a / n, b / n)
-    region = _ids.decode(ids)[1]
-    xyz = np.where((region == NORTH)[..., None], VERTICES[0], xyz)
-    return np.where((region == SOUTH)[..., None], VERTICES[11], xyz)
+    # The apexes sit at P (0, 0) and Q (2n, n) of strip 0's chart, points no strip owns.
+    north = (a == 0) & (b == 0)
+    south = (strip == 0) & (a == 2 * n) & (b == n)
+    xyz = np.where(north[..., None], VERTICES[0], xyz)
+    return np.where(south[..., None], VERTICES[11], xyz)
 
 
 def _drop_repeats(ids: np.ndarray) -> np.ndarray:

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from alveary.grid._authalic import R_AUTHALIC
+from alveary.grid._authalic import R_AUTHALIC, _clip
 from alveary.grid._icosahedron import FACE_CENTERS, FACE_E1, FACE_E2, FACES, VERTICES
 
 __all__ = [
@@ -69,7 +69,7 @@ def face_of(xyz: np.ndarray) -> np.ndarray:
 
 def _reduce(az: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Split an azimuth in [0, 2π) into a 120° sector number and the rest."""
-    sector = np.clip(np.floor(az / _SECTOR), 0, 2)
+    sector = _clip(np.floor(az / _SECTOR), 0, 2)
     return sector, az - sector * _SECTOR
 
 
@@ -94,7 +94,7 @@ def forward_sector(xyz: np.ndarray, face: np.ndarray):
     cos_az, sin_az = np.cos(az), np.sin(az)
     dist = cos_az + sin_az * _COT_THETA  # tan(g) / tan(q), eq. [9]
     sin_q2 = np.sqrt(0.5 * (1.0 - dist / np.sqrt(_TAN_G2 + dist * dist)))  # sin(q / 2)
-    h = np.arccos(np.clip(sin_az * _SIN_G * _COS_GARC - cos_az * _COS_G, -1.0, 1.0))  # [6]
+    h = np.arccos(_clip(sin_az * _SIN_G * _COS_GARC - cos_az * _COS_G, -1.0, 1.0))  # [6]
     area = az + _G + h - np.pi  # [7], on the unit sphere
     # [8]: tan Az' = u / w; [10]-[12] then reduce to rho (cos Az', sin Az') = (w, u) * scale.
     u = 2.0 * area
@@ -126,14 +126,14 @@ def inverse(face: np.ndarray, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     az = az_p.copy()
     for _ in range(4):  # Newton on Az + G + H(Az) - pi = area [6, 7]; quadratic from Az'
         ca, sa = np.cos(az), np.sin(az)
-        w = np.clip(sa * sg * cg - ca * cG, -1.0, 1.0)
+        w = _clip(sa * sg * cg - ca * cG, -1.0, 1.0)
         h = np.arccos(w)
         dh = -(ca * sg * cg + sa * cG) / np.sqrt(np.maximum(1.0 - w * w, 1e-300))
-        az = np.clip(az - (az + _G + h - np.pi - area) / (1.0 + dh), 0.0, _SECTOR)
+        az = _clip(az - (az + _G + h - np.pi - area) / (1.0 + dh), 0.0, _SECTOR)
     q = np.arctan2(_TAN_G, np.cos(az) + np.sin(az) * _COT_THETA)  # [9]
     d_p = RPRIME * _TAN_G / denom  # [10]
     f = d_p / (2.0 * RPRIME * np.sin(q / 2.0))  # [11]
-    z = 2.0 * np.arcsin(np.clip(rho / (2.0 * RPRIME * f), 0.0, 1.0))  # [12]
+    z = 2.0 * np.arcsin(_clip(rho / (2.0 * RPRIME * f), 0.0, 1.0))  # [12]
     az = az + sector * _SECTOR
     sin_z = np.sin(z)
     along1, along2, up = sin_z * np.cos(az), sin_z * np.sin(az), np.cos(z)
