@@ -17,16 +17,15 @@ from __future__ import annotations
 
 import os
 import re
-import socket
-import subprocess
 import sys
 import tempfile
 import time
-import urllib.request
 import uuid
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
+
+from support.process import LoopbackProcess, free_port
 
 __all__ = ["S3Request", "S3Server"]
 
@@ -59,12 +58,6 @@ class S3Request:
         return self.method == "GET" and not self.is_listing
 
 
-def _free_port(host: str) -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind((host, 0))
-        return int(s.getsockname()[1])
-
-
 def _moto_executable() -> str:
     candidate = Path(sys.executable).parent / "moto_server"
     if candidate.exists():
@@ -74,18 +67,18 @@ def _moto_executable() -> str:
     )
 
 
-class S3Server:
+class S3Server(LoopbackProcess):
     """Start, query and stop one ``moto_server`` process on the loopback interface."""
+
+    name = "moto_server"
 
     def __init__(self, host: str = "127.0.0.1", port: int | None = None) -> None:
         if host not in ("127.0.0.1", "localhost", "::1"):
             raise ValueError("the test S3 server listens on loopback only")
         self.host = host
-        self.port = port or _free_port(host)
+        self.port = port or free_port(host)
         self._dir = Path(tempfile.mkdtemp(prefix="alveary-s3-"))
-        self.log_path = self._dir / "requests.log"
-        self._proc: subprocess.Popen[bytes] | None = None
-        self._log = None
+        super().__init__(self._dir / "requests.log")
 
     # -- lifecycle -------------------------------------------------------------------
     @property
@@ -100,48 +93,14 @@ class S3Server:
             AWS_SECRET_ACCESS_KEY=SECRET_KEY,
             AWS_DEFAULT_REGION=REGION,
         )
-        self._log = open(self.log_path, "ab")
-        self._proc = subprocess.Popen(
+        self.launch(
             [_moto_executable(), "-H", self.host, "-p", str(self.port)],
-            stdout=self._log,
-            stderr=subprocess.STDOUT,
-            stdin=subprocess.DEVNULL,
-            env=env,
+            env,
+            self.endpoint_url + "/",
+            ok_below=500,
+            timeout=timeout,
         )
-        deadline = time.monotonic() + timeout
-        while True:
-            if self._proc.poll() is not None:
-                raise RuntimeError(f"moto_server exited: {self.log_path.read_text()[-2000:]}")
-            try:
-                with urllib.request.urlopen(self.endpoint_url + "/", timeout=2) as resp:
-                    if resp.status < 500:
-                        break
-            except OSError:
-                pass
-            if time.monotonic() > deadline:
-                self.stop()
-                raise RuntimeError(f"moto_server did not answer on {self.endpoint_url}")
-            time.sleep(0.1)
         return self
-
-    def stop(self) -> None:
-        if self._proc is not None:
-            self._proc.terminate()
-            try:
-                self._proc.wait(timeout=10)
-            except subprocess.TimeoutExpired:
-                self._proc.kill()
-                self._proc.wait(timeout=10)
-            self._proc = None
-        if self._log is not None:
-            self._log.close()
-            self._log = None
-
-    def __enter__(self) -> S3Server:
-        return self.start()
-
-    def __exit__(self, *exc: object) -> None:
-        self.stop()
 
     # -- clients ---------------------------------------------------------------------
     def storage_options(self, **extra: Any) -> dict[str, Any]:

@@ -15,22 +15,14 @@ from __future__ import annotations
 
 import json
 import os
-import socket
-import subprocess
 import sys
 import tempfile
-import time
-import urllib.request
 from pathlib import Path
 from typing import Any
 
+from support.process import LoopbackProcess, free_port
+
 __all__ = ["ServiceProcess", "free_port", "toml_cubes"]
-
-
-def free_port(host: str = "127.0.0.1") -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind((host, 0))
-        return int(s.getsockname()[1])
 
 
 def _toml_value(value: Any) -> str:
@@ -59,8 +51,10 @@ def toml_cubes(cubes: list[dict[str, Any]]) -> str:
     return "\n".join(out)
 
 
-class ServiceProcess:
+class ServiceProcess(LoopbackProcess):
     """One ``alveary serve`` process on the loopback interface."""
+
+    name = "alveary serve"
 
     def __init__(
         self,
@@ -76,7 +70,7 @@ class ServiceProcess:
         self.host = host
         self.port = free_port(host)
         self._dir = Path(tempfile.mkdtemp(prefix="alveary-svc-"))
-        self.log_path = self._dir / "server.log"
+        super().__init__(self._dir / "server.log")
         self.args = [sys.executable, "-m", "alveary.cli", "serve"]
         if cubes is not None:
             config = self._dir / "cubes.toml"
@@ -91,59 +85,11 @@ class ServiceProcess:
                 self.args += [flag, str(item)]
         self.env = dict(os.environ)
         self.env.update(env or {})
-        self._proc: subprocess.Popen[bytes] | None = None
-        self._log = None
 
     @property
     def url(self) -> str:
         return f"http://{self.host}:{self.port}"
 
-    @property
-    def pid(self) -> int | None:
-        return None if self._proc is None else self._proc.pid
-
-    def log(self) -> str:
-        return self.log_path.read_text(errors="replace") if self.log_path.exists() else ""
-
     def start(self, timeout: float = 60.0) -> ServiceProcess:
-        self._log = open(self.log_path, "ab")
-        self._proc = subprocess.Popen(
-            self.args,
-            stdout=self._log,
-            stderr=subprocess.STDOUT,
-            stdin=subprocess.DEVNULL,
-            env=self.env,
-        )
-        deadline = time.monotonic() + timeout
-        while True:
-            if self._proc.poll() is not None:
-                raise RuntimeError(f"alveary serve exited: {self.log()[-3000:]}")
-            try:
-                with urllib.request.urlopen(self.url + "/healthz", timeout=2) as resp:
-                    if resp.status == 200:
-                        return self
-            except OSError:
-                pass
-            if time.monotonic() > deadline:
-                self.stop()
-                raise RuntimeError(f"alveary serve did not answer on {self.url}")
-            time.sleep(0.1)
-
-    def stop(self) -> None:
-        if self._proc is not None:
-            self._proc.terminate()
-            try:
-                self._proc.wait(timeout=15)
-            except subprocess.TimeoutExpired:
-                self._proc.kill()
-                self._proc.wait(timeout=10)
-            self._proc = None
-        if self._log is not None:
-            self._log.close()
-            self._log = None
-
-    def __enter__(self) -> ServiceProcess:
-        return self.start()
-
-    def __exit__(self, *exc: object) -> None:
-        self.stop()
+        self.launch(self.args, self.env, self.url + "/healthz", ok_below=201, timeout=timeout)
+        return self
