@@ -14,7 +14,7 @@ import pyproj
 import shapely
 
 from alveary.grid import _ids
-from alveary.grid._authalic import R_AUTHALIC, geodetic_to_authalic
+from alveary.grid._authalic import R_AUTHALIC, authalic_to_geodetic, geodetic_to_authalic
 from alveary.grid._hierarchy import children
 from alveary.grid._lattice import ids_to_xyz
 from alveary.grid._snyder import EDGE, lonlat_to_xyz, xyz_to_lonlat
@@ -36,8 +36,6 @@ def every_zone(level: int) -> np.ndarray:
 
 def centres_deg(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Geodetic (lat, lon) of zone centres."""
-    from alveary.grid._authalic import authalic_to_geodetic
-
     beta, lon = xyz_to_lonlat(ids_to_xyz(ids))
     return authalic_to_geodetic(beta), lon
 
@@ -50,8 +48,6 @@ def search(level: int, near, inside) -> np.ndarray:
         xyz = ids_to_xyz(ids)
         beta, lon = xyz_to_lonlat(xyz)
         if lv == level:
-            from alveary.grid._authalic import authalic_to_geodetic
-
             lat = authalic_to_geodetic(beta)
             return np.sort(ids[inside(lat, lon)])
         reach = _REACH / (1 << lv)
@@ -79,11 +75,6 @@ def in_radius(lat: float, lon: float, meters: float, level: int):
     la, lo = centres_deg(ids)
     _, _, dist = _GEOD.inv(np.full(la.shape, lon), np.full(la.shape, lat), lo, la)
     return ids, np.asarray(dist, dtype=np.float64)
-
-
-def _lon_boxes(lon, dlon):
-    """Longitude interval(s) [lon - dlon, lon + dlon], as one interval maybe beyond ±180."""
-    return lon - dlon, lon + dlon
 
 
 def _reach_box(beta, lon, reach):
