@@ -16,12 +16,16 @@ GEOD = pyproj.Geod(ellps="WGS84")
 
 # The public names of the contract (grid-api.md), nothing more.
 CONTRACT_NAMES = [
+    "EARTH_AREA",
     "MAX_LEVEL",
+    "PENTAGON_SHARE",
+    "R_AUTHALIC",
     "all_zones",
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",
     "zone_area",
+    "zone_areas",
     "zone_boundary",
     "zone_children",
     "zone_count",
@@ -52,6 +56,9 @@ def test_public_names_are_the_contract_sorted():
     for name in CONTRACT_NAMES:
         assert hasattr(grid, name)
     assert grid.MAX_LEVEL == 24
+    # WGS84's surface area, 510 065 621.724 km² (the authalic sphere's by construction)
+    assert grid.EARTH_AREA == pytest.approx(WGS84_AREA_M2, rel=1e-12)
+    assert 4 * np.pi * grid.R_AUTHALIC**2 == pytest.approx(WGS84_AREA_M2, rel=1e-12)
 
 
 def test_zone_count_formula():

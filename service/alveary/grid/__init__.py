@@ -10,11 +10,13 @@ All functions take numpy arrays or scalars and raise :class:`alveary.GridError` 
 """
 
 from alveary.grid._api import (
+    PENTAGON_SHARE,
     all_zones,
     index_to_zone,
     is_pentagon,
     point_to_zone,
     zone_area,
+    zone_areas,
     zone_boundary,
     zone_children,
     zone_count,
@@ -31,15 +33,20 @@ from alveary.grid._api import (
     zones_in_polygon,
     zones_in_radius,
 )
+from alveary.grid._authalic import EARTH_AREA, R_AUTHALIC
 from alveary.grid._ids import MAX_LEVEL
 
 __all__ = [
+    "EARTH_AREA",
     "MAX_LEVEL",
+    "PENTAGON_SHARE",
+    "R_AUTHALIC",
     "all_zones",
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",
     "zone_area",
+    "zone_areas",
     "zone_boundary",
     "zone_children",
     "zone_count",

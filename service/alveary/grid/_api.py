@@ -12,6 +12,8 @@ from alveary.grid._ids import MAX_LEVEL, check_level
 from alveary.grid._snyder import xyz_to_lonlat
 
 _ALL_ZONES_MAX = 10
+#: A pentagon's area as a share of a hexagon's at the same level.
+PENTAGON_SHARE = 5.0 / 6.0
 
 
 def _finite(name: str, value) -> np.ndarray:
@@ -75,6 +77,19 @@ def zone_area(level: int) -> float:
     48.644
     """
     return float(EARTH_AREA / (10 * 4 ** check_level(level)))
+
+
+def zone_areas(zones) -> np.ndarray:
+    """Area in m² of each zone: ``zone_area(level)`` for hexagons, 5/6 of it for pentagons.
+
+    >>> a = zone_areas(all_zones(1))
+    >>> round(float(a.sum()) / 1e12, 3)  # the WGS84 ellipsoid's area, million km²
+    510.066
+    """
+    ids = _ids.as_zones(zones)
+    level = _ids.decode(ids)[0]
+    full = EARTH_AREA / (10.0 * np.power(4.0, level))
+    return np.where(is_pentagon(ids), full * PENTAGON_SHARE, full)
 
 
 def point_to_zone(lat, lon, level: int) -> np.ndarray:
