@@ -285,9 +285,42 @@ def test_zones_in_radius_against_geod(centres, lat0, lon0, meters):
     )
 
 
+@pytest.mark.parametrize("seed", range(4))
+def test_radius_always_holds_the_zone_of_the_point(centres, seed):
+    # A field app asks what is around where it stands: the zone the point lies in
+    # (point_to_zone) always belongs to the answer, with its real distance, beside every
+    # zone whose centre is within the radius (brute force over every zone with
+    # pyproj.Geod distances).
+    zones, lat, lon = centres
+    rng = np.random.default_rng(seed)
+    for _ in range(6):
+        lat0 = float(np.degrees(np.arcsin(rng.uniform(-1, 1))))
+        lon0 = float(rng.uniform(-180, 180))
+        meters = float(rng.choice([0.0, 1.0, rng.uniform(0, 60e3), rng.uniform(0, 120e3)]))
+        got, dist = grid.zones_in_radius(lat0, lon0, meters, BRUTE_LEVEL, return_distance=True)
+        own = int(grid.point_to_zone(lat0, lon0, BRUTE_LEVEL))
+        _, _, d = GEOD.inv(np.full(lat.size, lon0), np.full(lat.size, lat0), lon, lat)
+        d = np.asarray(d)
+        judged = np.abs(d - meters) > 1e-3
+        want = set(zones[(d <= meters) & judged].tolist()) | {own}
+        assert set(got.tolist()) & (set(zones[judged].tolist()) | {own}) == want
+        assert (np.diff(got.astype(np.int64)) > 0).all()
+        expected = dict(zip(zones.tolist(), d.tolist(), strict=True))
+        np.testing.assert_allclose(dist, [expected[z] for z in got.tolist()], atol=1e-3)
+
+
+def test_readme_radius_holds_the_zone_under_the_point():
+    # the README's example: the zone's centre is 970 m from the point, beyond 500 m
+    got, dist = grid.zones_in_radius(30.55, -36.1, 500.0, 12, return_distance=True)
+    own = grid.point_to_zone(30.55, -36.1, 12)
+    clat, clon = grid.zone_to_point(own)
+    assert got.tolist() == [int(own)]
+    assert dist[0] == pytest.approx(GEOD.inv(-36.1, 30.55, float(clon), float(clat))[2], abs=1e-6)
+
+
 def test_tiny_radius_at_a_centre_is_that_zone():
     zone = grid.point_to_zone(12.5, -3.25, 10)
     lat, lon = grid.zone_to_point(zone)
     got = np.asarray(grid.zones_in_radius(float(lat), float(lon), 1e-3, 10))
     assert got.tolist() == [int(zone)]
-    assert np.asarray(grid.zones_in_radius(float(lat), float(lon), 0.0, 10)).size <= 1
+    assert np.asarray(grid.zones_in_radius(float(lat), float(lon), 0.0, 10)).tolist() == [int(zone)]

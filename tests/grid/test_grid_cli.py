@@ -51,7 +51,7 @@ def test_json_output_is_sensible_on_its_own(facts):
     _, _, d = geod.inv(-3.25, 12.5, facts["centre"]["lon"], facts["centre"]["lat"])
     assert d < 12_000  # level 9 zones are about 14 km across
     ring = np.array(facts["boundary"])
-    assert ring.shape == (6, 2)
+    assert ring.shape[0] >= 6 and ring.shape[1] == 2  # a hexagon's true outline
     area, _ = geod.polygon_area_perimeter(ring[:, 1], ring[:, 0])
     assert area == pytest.approx(facts.get("area_m2", facts.get("area")), rel=1e-3)
 

@@ -196,29 +196,26 @@ def test_bad_radius_centre():
 )
 def test_bad_bbox(box, parameter):
     raises(grid.zones_in_bbox, *box, 4, parameter=parameter)
+    raises(grid.bbox_area, *box, parameter=parameter)
 
 
-SQUARE = [[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0], [0.0, 0.0]]
-
-
-@pytest.mark.parametrize(
-    "geometry",
-    [
-        None,
-        "POLYGON((0 0, 1 0, 1 1, 0 0))",
-        [SQUARE],
-        {"type": "Point", "coordinates": [0.0, 0.0]},
-        {"type": "Polygon"},
-        {"type": "Polygon", "coordinates": []},
-        {"type": "Polygon", "coordinates": [SQUARE[:-1]]},  # not closed (RFC 7946 3.1.6)
-        {"type": "Polygon", "coordinates": [[[0.0, 0.0], [1.0, 1.0], [0.0, 0.0]]]},  # too short
-        {"type": "Polygon", "coordinates": [[[0.0, 0.0], [1.0, "a"], [1.0, 1.0], [0.0, 0.0]]]},
-        {"type": "Polygon", "coordinates": [[[0.0, 0.0], [1.0, 0.0], [1.0, 95.0], [0.0, 0.0]]]},
-        {"type": "Polygon", "coordinates": [[[0.0, 0.0], [1.0, math.nan], [1.0, 1.0], [0.0, 0.0]]]},
-        # a bow tie crosses itself: not a valid polygon (OGC simple features)
-        {"type": "Polygon", "coordinates": [[[0, 0], [1, 1], [1, 0], [0, 1], [0, 0]]]},
-        {"type": "MultiPolygon", "coordinates": [SQUARE]},  # one nesting level short
-    ],
-)
-def test_bad_geometry(geometry):
-    raises(grid.zones_in_polygon, geometry, 4, parameter="geometry")
+def test_lat_lon_check_names_value_range_and_position():
+    err = raises(
+        grid.check_lat_lon,
+        [[0.0, 1.0], [2.0, -90.5]],
+        0.0,
+        parameter="lat",
+        value=-90.5,
+        index=(1, 1),
+    )
+    assert "[-90, 90]" in str(err)
+    err = raises(
+        grid.check_lat_lon, [0.0, 1.0], [10.0, 180.5], parameter="lon", value=180.5, index=1
+    )
+    assert "[-180, 180]" in str(err)
+    raises(grid.check_lat_lon, 0.0, float("nan"), wrap=True, parameter="lon")
+    raises(grid.check_lat_lon, [0.0, 1.0], [1.0, 2.0, 3.0], parameter="lon")
+    lat, lon = grid.check_lat_lon([0.0, 45.0], [180.5, -540.0], wrap=True)
+    assert lon.tolist() == [-179.5, 180.0 - 360.0]
+    lat, lon = grid.check_lat_lon(45, 180)
+    assert (float(lat), float(lon)) == (45.0, 180.0)

@@ -16,7 +16,6 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from alveary import grid
-from alveary.api._shapes import zone_geometries
 from alveary.query import StatsResult, ZoneResult, format_time
 
 __all__ = ["FORMATS", "MEDIA_TYPES", "encode", "negotiate"]
@@ -122,7 +121,7 @@ def _zone_json(result: ZoneResult) -> bytes:
 def _zone_geojson(result: ZoneResult) -> bytes:
     cols = _zone_columns(result)
     values = _values(result)
-    geometries = zone_geometries(result.zones)
+    geometries = grid.zone_to_geojson(np.atleast_1d(result.zones))
     names = list(cols)
     features = []
     for n in range(result.zones.size):

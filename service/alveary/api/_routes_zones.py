@@ -12,7 +12,6 @@ from starlette.responses import Response
 from alveary import grid
 from alveary._errors import InvalidInput, NotFound
 from alveary.api._schemas import ZoneInfo
-from alveary.api._shapes import zone_geometries
 from alveary.api.deps import LatParam, LonParam, ServiceDep, ZoneFormatDep, ZonePath
 from alveary.query._models import parse_zone
 
@@ -65,7 +64,7 @@ def zone_info(zone: int) -> dict[str, Any]:
         "pentagon": pentagon,
         "area_m2": area,
         "centre": {"lat": float(lat), "lon": float(lon)},
-        "geometry": zone_geometries(np.array([zone], dtype=np.uint64))[0],
+        "geometry": grid.zone_to_geojson(z),
         "neighbours": _ref(grid.zone_neighbors(z)),
         "parent": parent,
         "children": children,

@@ -2,11 +2,15 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
+import numpy.typing as npt
 
 from alveary._errors import GridError
-from alveary.grid import _geojson, _hierarchy, _ids, _lattice, _regions
+from alveary.grid import _geojson, _hierarchy, _ids, _lattice, _outline, _regions
 from alveary.grid._authalic import EARTH_AREA, authalic_to_geodetic, geodetic_to_xyz
+from alveary.grid._checks import check_lat_lon, steps
 from alveary.grid._disk import disk as _disk
 from alveary.grid._ids import MAX_LEVEL, check_level
 from alveary.grid._snyder import xyz_to_lonlat
@@ -16,49 +20,11 @@ _ALL_ZONES_MAX = 10
 PENTAGON_SHARE = 5.0 / 6.0
 
 
-def _finite(name: str, value) -> np.ndarray:
-    try:
-        arr = np.asarray(value, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise GridError(name, value, "finite numbers") from None
-    bad = ~np.isfinite(arr)
-    if bad.any():
-        idx = None if arr.ndim == 0 else _ids._first_bad(bad)
-        raise GridError(name, _ids._pick(arr, bad), "a finite number", index=idx)
-    return arr
-
-
-def _latlon(lat, lon) -> tuple[np.ndarray, np.ndarray]:
-    la, lo = _finite("lat", lat), _finite("lon", lon)
-    bad = np.abs(la) > 90.0
-    if bad.any():
-        idx = None if la.ndim == 0 else _ids._first_bad(bad)
-        raise GridError("lat", _ids._pick(la, bad), "[-90, 90] degrees", index=idx)
-    try:
-        la, lo = np.broadcast_arrays(la, lo)
-    except ValueError:
-        raise GridError(
-            "lon", lo.shape, f"an array broadcastable to lat's shape {la.shape}"
-        ) from None
-    return la, (lo + 180.0) % 360.0 - 180.0
-
-
-def _one_zone(zone, parameter: str = "zone") -> np.uint64:
+def _one_zone(zone: Any, parameter: str = "zone") -> np.uint64:
     ids = _ids.as_zones(zone, parameter)
     if ids.size != 1:
         raise GridError(parameter, f"array of shape {ids.shape}", "a single zone id")
     return ids.reshape(())
-
-
-def _steps(k, parameter: str = "k") -> int:
-    try:
-        value = int(k)
-        ok = value == k and value >= 0 and not isinstance(k, bool)
-    except (TypeError, ValueError, OverflowError):
-        ok = False
-    if not ok:
-        raise GridError(parameter, k, "an integer >= 0")
-    return value
 
 
 def zone_count(level: int) -> int:
@@ -103,7 +69,7 @@ def point_to_zone(lat, lon, level: int) -> np.ndarray:
     ['9c-17-37', '9a-829-376']
     """
     level = check_level(level)
-    la, lo = _latlon(lat, lon)
+    la, lo = check_lat_lon(lat, lon, wrap=True)
     shape = la.shape
     la, lo = la.reshape(-1), lo.reshape(-1)
     out = np.empty(la.shape, dtype=np.uint64)
@@ -152,39 +118,63 @@ def is_pentagon(zones) -> np.ndarray:
     return (a % n == 0) & (b % n == 0)
 
 
-def zone_boundary(zone, *, face_edges: bool = False) -> np.ndarray:
-    """Corners (lat, lon) of a zone, counter-clockwise seen from outside the Earth.
+def zone_boundary(zone: Any, *, corners_only: bool = False) -> npt.NDArray[np.float64]:
+    """The outline of a zone: (lat, lon) points, counter-clockwise seen from outside the Earth.
 
-    One zone gives an (m, 2) array, m = 6 for hexagons and 5 for pentagons. An array of N
-    zones gives (N, 6, 2), with NaN in the sixth row of pentagons.
+    By default the true outline. A zone is straight-edged in the plane of each face of the
+    projection, so on the globe its edges bend where they cross a face edge or one of the
+    lines from a face's centre to its vertices, and at coarse levels they sag away from the
+    geodesics between their corners. The outline holds the corners, those bends and, where
+    needed, points along the edges, every one on the zone's true edge, so that the
+    geodesics between neighbouring points stay within 0.25 m (or 1e-4 of the lattice
+    spacing, if smaller) of it: geodesic areas match :func:`zone_areas` to about 1e-5 at
+    every level, and the outline holds every point that :func:`point_to_zone` puts in the
+    zone, but for points closer than that to its edge. With ``corners_only`` just the 6
+    corners (5 for pentagons); their geodesic polygon can miss the zone's area by a few
+    per cent (pentagons, zones around a face's centre) and its edges by kilometres at
+    coarse levels.
 
-    A zone is straight-edged in each face's plane, so on the globe its edges bend slightly
-    where they cross a face edge. With ``face_edges=True`` those crossing points are
-    inserted between the corners, giving the zone's true outline (geodesic areas then
-    match :func:`zone_area` closely, pentagons included: their five edges all bend, and
-    the corners alone overstate a pentagon's area by about 4 %). Arrays of zones are then
-    NaN-padded to the longest outline.
+    One zone gives an (m, 2) array. An array of N zones gives (N, M, 2), padded with NaN
+    to the longest outline (M = 6 with ``corners_only``).
 
-    >>> zone_boundary(zone_from_text("5b-20-7")).shape, zone_boundary(zone_from_text("5n")).shape
-    ((6, 2), (5, 2))
-    >>> zone_boundary(zone_from_text("5n"), face_edges=True).shape
+    >>> zone_boundary(zone_from_text("12b-20-7")).shape
+    (6, 2)
+    >>> zone_boundary(zone_from_text("5n"), corners_only=True).shape
+    (5, 2)
+    >>> zone_boundary(zone_from_text("12n")).shape  # its corners, bent where edges cross faces
     (10, 2)
     """
     ids = _ids.as_zones(zone, "zone")
     flat = ids.reshape(-1)
-    if face_edges:
-        rings = _lattice.exact_boundaries(flat)
-        xyz = np.full((flat.size, max(len(r) for r in rings), 3), np.nan)
-        for row, ring in enumerate(rings):
-            xyz[row, : len(ring)] = ring
-    else:
+    if corners_only:
         xyz = _lattice.boundaries(flat)
+    else:
+        xyz = _outline.padded(*_outline.outlines(flat))
     beta, lon = xyz_to_lonlat(xyz)
     out = np.stack([authalic_to_geodetic(beta), lon], axis=-1)
     if ids.ndim == 0:
         out = out[0]
         return out[~np.isnan(out[:, 0])]
     return out.reshape(ids.shape + out.shape[1:])
+
+
+def zone_to_geojson(zones: Any) -> dict[str, Any] | list[dict[str, Any]]:
+    """The true outline of zones as GeoJSON geometries (RFC 7946), for maps and files.
+
+    Rings are closed, in (longitude, latitude), exterior rings counter-clockwise. A zone
+    crossing the antimeridian is cut there into a MultiPolygon (RFC 7946 §3.1.9); a zone
+    holding a pole is one Polygon drawn up to the pole along ±180°. One zone gives a
+    geometry, an array of zones a list of them (in the order of ``zones.ravel()``).
+
+    >>> g = zone_to_geojson(point_to_zone(10.0, 20.0, 9))
+    >>> g["type"], g["coordinates"][0][0] == g["coordinates"][0][-1]
+    ('Polygon', True)
+    >>> zone_to_geojson(point_to_zone([0.0], [180.0], 4))[0]["type"]
+    'MultiPolygon'
+    """
+    ids = _ids.as_zones(zones, "zones")
+    out = _geojson.geometries(ids.reshape(-1))
+    return out[0] if ids.ndim == 0 else out
 
 
 def zone_neighbors(zone) -> np.ndarray:
@@ -210,8 +200,8 @@ def zone_disk(zone, k: int, *, return_steps: bool = False):
     >>> len(zone_disk(point_to_zone(10.0, 20.0, 12), 3))  # 3k(k+1) + 1
     37
     """
-    ids, steps = _disk(_one_zone(zone), _steps(k))
-    return (ids, steps) if return_steps else ids
+    ids, steps_ = _disk(_one_zone(zone), steps(k))
+    return (ids, steps_) if return_steps else ids
 
 
 def zone_ring(zone, k: int) -> np.ndarray:
@@ -220,8 +210,8 @@ def zone_ring(zone, k: int) -> np.ndarray:
     >>> len(zone_ring(point_to_zone(10.0, 20.0, 12), 3))  # 6k
     18
     """
-    ids, steps = _disk(_one_zone(zone), _steps(k))
-    return ids[steps == k]
+    ids, steps_ = _disk(_one_zone(zone), steps(k))
+    return ids[steps_ == k]
 
 
 def zone_parent(zones) -> np.ndarray:
@@ -237,8 +227,7 @@ def zone_parent(zones) -> np.ndarray:
     ids = _ids.as_zones(zones)
     level = _ids.decode(ids)[0]
     if (level == 0).any():
-        idx = None if ids.ndim == 0 else _ids._first_bad(level == 0)
-        raise GridError("zones", _ids._pick(ids, level == 0), "zones of level >= 1", index=idx)
+        raise _ids.refuse("zones", ids, level == 0, "zones of level >= 1")
     return _hierarchy.parents(ids)
 
 
@@ -257,70 +246,12 @@ def zone_children(zone) -> tuple[np.ndarray, np.ndarray]:
     ids = _ids.as_zones(zone, "zone")
     level = _ids.decode(ids)[0]
     if (level >= MAX_LEVEL).any():
-        raise GridError("zone", "level 24 zone", f"zones of level < {MAX_LEVEL}")
+        raise _ids.refuse("zone", ids, level >= MAX_LEVEL, f"zones of level < {MAX_LEVEL}")
     kids, weights = _hierarchy.children(ids.reshape(-1))
     if ids.ndim == 0:
         keep = kids[0] != 0
         return kids[0][keep], weights[0][keep]
     return kids.reshape((*ids.shape, 7)), weights.reshape((*ids.shape, 7))
-
-
-def zones_in_radius(lat, lon, meters, level: int, *, return_distance: bool = False):
-    """Zones whose centres lie within ``meters`` (WGS84 geodesic) of a point, ids ascending.
-
-    With ``return_distance`` also each centre's distance in metres.
-
-    >>> ids, d = zones_in_radius(45.0, 7.0, 2000.0, 13, return_distance=True)
-    >>> len(ids), bool(d.max() <= 2000.0)  # about 12.6 km² / 0.76 km²
-    (17, True)
-    """
-    level = check_level(level)
-    la, lo = _latlon(lat, lon)
-    if la.ndim != 0:
-        raise GridError("lat", "an array", "a single point")
-    m = float(_finite("meters", meters))
-    if m < 0:
-        raise GridError("meters", m, ">= 0")
-    ids, dist = _regions.in_radius(float(la), float(lo), m, level)
-    return (ids, dist) if return_distance else ids
-
-
-def zones_in_bbox(west, south, east, north, level: int) -> np.ndarray:
-    """Zones whose centres lie in a longitude/latitude box, ids ascending.
-
-    ``west > east`` means the box crosses the antimeridian.
-
-    >>> len(zones_in_bbox(5.0, 45.0, 6.0, 46.0, 9))  # about 8 750 km² / 194.6 km²
-    45
-    """
-    level = check_level(level)
-    w, e = (float(_finite(n, v)) for n, v in (("west", west), ("east", east)))
-    s, n = (float(_finite(n, v)) for n, v in (("south", south), ("north", north)))
-    for name, v in (("south", s), ("north", n)):
-        if abs(v) > 90.0:
-            raise GridError(name, v, "[-90, 90] degrees")
-    if s > n:
-        raise GridError("south", s, f"<= north ({n})")
-    if e - w >= 360.0:
-        w, e = -180.0, 180.0
-    else:
-        w, e = ((w + 180.0) % 360.0 - 180.0), ((e + 180.0) % 360.0 - 180.0)
-        if e == -180.0 and east > west:
-            e = 180.0
-    return _regions.in_bbox(w, s, e, n, level)
-
-
-def zones_in_polygon(geometry: dict, level: int) -> np.ndarray:
-    """Zones whose centres lie in a GeoJSON Polygon or MultiPolygon, ids ascending.
-
-    Holes are respected; rings crossing the antimeridian are read as RFC 7946 describes.
-
-    >>> square = {"type": "Polygon", "coordinates": [[[5, 45], [6, 45], [6, 46], [5, 46], [5, 45]]]}
-    >>> len(zones_in_polygon(square, 9))
-    45
-    """
-    level = check_level(level)
-    return _regions.in_shape(_geojson.parse(geometry), level)
 
 
 def all_zones(level: int) -> np.ndarray:
@@ -380,7 +311,7 @@ def index_to_zone(level, region, i, j) -> np.ndarray:
     r, ii, jj = (np.asarray(x) for x in (r, ii, jj))
     for name, arr in (("region", r), ("i", ii), ("j", jj)):
         if arr.dtype.kind not in "iu":
-            raise GridError(name, _ids._scalar(arr), "integers")
+            raise GridError(name, _ids.scalar(arr), "integers")
     n = np.left_shift(1, lv.astype(np.int64))
     apex = r >= _ids.NORTH
     checks = (
@@ -390,7 +321,5 @@ def index_to_zone(level, region, i, j) -> np.ndarray:
     )
     for name, bad, allowed in checks:
         if bad.any():
-            arr = {"region": r, "i": ii, "j": jj}[name]
-            idx = None if arr.ndim == 0 else _ids._first_bad(bad)
-            raise GridError(name, _ids._pick(arr, bad), allowed, index=idx)
+            raise _ids.refuse(name, {"region": r, "i": ii, "j": jj}[name], bad, allowed)
     return _ids.encode(lv, r, ii, jj)

@@ -41,7 +41,7 @@ def _gap(u: np.ndarray) -> np.ndarray:
 _QP = float(_gap(np.float64(2.0)) / 2.0)  # q_p: half the gap from pole to pole
 
 #: Radius of the sphere with the WGS84 ellipsoid's surface area, metres.
-R_AUTHALIC = WGS84_A * np.sqrt(_QP / 2.0)
+R_AUTHALIC = float(WGS84_A * np.sqrt(_QP / 2.0))
 
 #: Surface area of the WGS84 ellipsoid, square metres.
 EARTH_AREA = 4.0 * np.pi * R_AUTHALIC**2

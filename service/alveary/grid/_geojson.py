@@ -1,113 +1,95 @@
-"""GeoJSON Polygon / MultiPolygon -> a valid shapely geometry in [-180, 180] x [-90, 90].
+"""Zone outlines as GeoJSON geometries (RFC 7946).
 
-Rings are read as RFC 7946 says: positions are (longitude, latitude), edges are straight in
-longitude/latitude, and a ring may cross the antimeridian either by being cut in two
-(§3.1.9, a MultiPolygon) or by an edge whose longitudes jump by more than 180°, which is
-read as the short way across ±180. A ring that winds once around a pole (its unwrapped
-longitudes gain or lose 360°) is closed over that pole: eastward-winding rings enclose the
-north pole, westward ones the south pole.
+Rings are the zones' true outlines (see ``_outline``), closed, in (longitude, latitude),
+exterior rings counter-clockwise (§3.1.6). A zone that crosses the antimeridian is cut
+there into a MultiPolygon (§3.1.9), the cut points put on the WGS84 geodesic between
+the outline's neighbouring points so that cutting changes neither the outline nor its
+geodesic area; a zone that holds a pole is drawn up to that pole along ±180° as one
+Polygon.
 """
 
 from __future__ import annotations
 
-import math
+from typing import Any
 
 import numpy as np
+import numpy.typing as npt
+import pyproj
 import shapely
-from shapely.validation import explain_validity
+from shapely.geometry import mapping
 
-from alveary._errors import GridError
+from alveary.grid._authalic import authalic_to_geodetic
+from alveary.grid._outline import outlines
+from alveary.grid._polygon import fold, plain
+from alveary.grid._snyder import xyz_to_lonlat
 
-_PARAM = "geometry"
-
-
-def _fail(detail: str, value=None) -> GridError:
-    return GridError(_PARAM, value, message=f"geometry: {detail}")
-
-
-def _ring(coords, where: str) -> np.ndarray:
-    if not isinstance(coords, (list, tuple)) or len(coords) < 4:
-        raise _fail(f"{where} must be a list of at least 4 positions")
-    try:
-        arr = np.array([[float(p[0]), float(p[1])] for p in coords], dtype=np.float64)
-    except (TypeError, ValueError, IndexError):
-        raise _fail(f"{where} holds a position that is not [longitude, latitude]") from None
-    if not np.isfinite(arr).all():
-        raise _fail(f"{where} holds a coordinate that is not finite")
-    bad = np.abs(arr[:, 1]) > 90.0
-    if bad.any():
-        k = int(np.argmax(bad))
-        raise _fail(f"{where} position {k} has latitude {arr[k, 1]}; allowed: [-90, 90]")
-    if not np.array_equal(arr[0], arr[-1]):
-        raise _fail(f"{where} is not closed (RFC 7946: first and last positions equal)")
-    return arr
+Floats = npt.NDArray[np.float64]
+_GEOD = pyproj.Geod(ellps="WGS84")
+_HALVINGS = 56  # bisection along a geodesic, down to a few nanometres
 
 
-def _unwrap(ring: np.ndarray) -> np.ndarray:
-    lon = ring[:, 0].copy()
-    if abs(lon[0]) > 180.0:
-        lon[0] = (lon[0] + 180.0) % 360.0 - 180.0
-    d = np.diff(ring[:, 0])
-    # A step of more than 180° (but not a full 360°, which is an edge along a pole or a
-    # side of a world-wide rectangle) crosses the antimeridian the short way.
-    jump = (np.abs(d) > 180.0) & (np.abs(d) < 360.0)
-    d = np.where(jump, (d + 180.0) % 360.0 - 180.0, d)
-    lon[1:] = lon[0] + np.cumsum(d)
-    out = np.stack([lon, ring[:, 1]], axis=1)
-    turn = out[-1, 0] - out[0, 0]
-    if abs(turn) > 1e-9:  # winds around a pole: close the ring over it
+def _meridian_crossings(start: Floats, end: Floats, meridian: Floats) -> Floats:
+    """Latitudes where WGS84 geodesics start -> end (lon, lat; longitudes unwrapped) meet
+    the meridians ``meridian`` that lie between their ends (bisection along each)."""
+    az, _, dist = _GEOD.inv(start[:, 0], start[:, 1], end[:, 0], end[:, 1])
+    lo, hi = np.zeros(dist.shape), np.asarray(dist, dtype=np.float64)
+    east = end[:, 0] > start[:, 0]
+    for _ in range(_HALVINGS):
+        mid = 0.5 * (lo + hi)
+        x, _, _ = _GEOD.fwd(start[:, 0], start[:, 1], az, mid)
+        x = start[:, 0] + (np.asarray(x) - start[:, 0] + 180.0) % 360.0 - 180.0
+        short = (x < meridian) == east  # not yet at the meridian
+        lo, hi = np.where(short, mid, lo), np.where(short, hi, mid)
+    _, y, _ = _GEOD.fwd(start[:, 0], start[:, 1], az, 0.5 * (lo + hi))
+    return np.asarray(y, dtype=np.float64)
+
+
+def _cut(lon: Floats, lat: Floats) -> dict[str, Any]:
+    """One zone's ring that crosses ±180 (or winds round a pole) as valid GeoJSON."""
+    step = (np.diff(np.append(lon, lon[0])) + 180.0) % 360.0 - 180.0
+    x = lon[0] + np.concatenate([[0.0], np.cumsum(step)])
+    turn = 360.0 * round(float(x[-1] - x[0]) / 360.0)  # 0, or ±360 round a pole
+    x[-1] = x[0] + turn  # closed exactly, whatever the rounding of the sum
+    ring = np.column_stack([x, np.append(lat, lat[0])])
+    # A vertex where an edge meets an odd multiple of 180°, so that cutting adds no other.
+    k0 = np.floor((ring[:-1, 0] - 180.0) / 360.0)
+    k1 = np.floor((ring[1:, 0] - 180.0) / 360.0)
+    edge = np.flatnonzero(k0 != k1)  # an outline's pieces are far shorter than 360°
+    meridian = 180.0 + 360.0 * np.maximum(k0, k1)[edge]
+    cut = np.column_stack([meridian, _meridian_crossings(ring[edge], ring[edge + 1], meridian)])
+    ring = np.insert(ring, edge + 1, cut, axis=0)
+    if turn:  # the zone holds a pole: close the ring over it along meridians
         pole = 90.0 if turn > 0 else -90.0
-        cap = np.array([[out[-1, 0], pole], [out[0, 0], pole], out[0]])
-        out = np.vstack([out, cap])
+        ring = np.vstack([ring, [[ring[-1, 0], pole], [ring[0, 0], pole]], ring[:1]])
+    parts = fold(shapely.Polygon(ring))
+    shape = parts[0] if len(parts) == 1 else shapely.MultiPolygon(parts)
+    result: dict[str, Any] = plain(mapping(shapely.orient_polygons(shape, exterior_cw=False)))
+    return result
+
+
+def geometries(ids: npt.NDArray[np.uint64]) -> list[dict[str, Any]]:
+    """GeoJSON geometry of each of some validated zones (a flat array)."""
+    if ids.size == 0:
+        return []
+    points, counts = outlines(ids)
+    beta, lon = xyz_to_lonlat(points)
+    lat = authalic_to_geodetic(beta)
+    first = np.cumsum(counts) - counts
+    # the closed ring of each zone: its points, then its first point again
+    size = counts + 1
+    rank = np.arange(int(size.sum())) - np.repeat(first + np.arange(ids.size), size)
+    idx = np.repeat(first, size) + np.where(rank == np.repeat(counts, size), 0, rank)
+    jump = np.abs(np.diff(lon[idx])) > 180.0
+    jump[np.cumsum(size)[:-1] - 1] = False  # from one ring to the next
+    crossing = np.zeros(ids.size, dtype=bool)
+    crossing[np.repeat(np.arange(ids.size), size)[:-1][jump]] = True
+    closed = np.column_stack([lon[idx], lat[idx]]).tolist()
+    bounds = np.concatenate([[0], np.cumsum(size)]).tolist()
+    out: list[dict[str, Any]] = []
+    for z in range(ids.size):
+        if crossing[z]:
+            s, e = int(first[z]), int(first[z] + counts[z])
+            out.append(_cut(lon[s:e], lat[s:e]))
+        else:
+            out.append({"type": "Polygon", "coordinates": [closed[bounds[z] : bounds[z + 1]]]})
     return out
-
-
-def _polygon(rings, where: str) -> shapely.Polygon:
-    if not isinstance(rings, (list, tuple)) or not rings:
-        raise _fail(f"{where} must be a non-empty list of rings")
-    shell = _unwrap(_ring(rings[0], f"{where} exterior ring"))
-    centre = shell[:, 0].mean()
-    holes = []
-    for k, hole in enumerate(rings[1:], start=1):
-        h = _unwrap(_ring(hole, f"{where} ring {k}"))
-        h[:, 0] += 360.0 * round((centre - h[:, 0].mean()) / 360.0)
-        holes.append(h)
-    poly = shapely.Polygon(shell, holes)
-    if not poly.is_valid:
-        raise _fail(f"{where} is not a valid polygon ({explain_validity(poly)})")
-    return poly
-
-
-def parse(geometry) -> shapely.Geometry:
-    """Validate a GeoJSON geometry dict and return it folded into [-180, 180]."""
-    if not isinstance(geometry, dict):
-        raise _fail("must be a GeoJSON Polygon or MultiPolygon object", type(geometry).__name__)
-    kind = geometry.get("type")
-    coords = geometry.get("coordinates")
-    if kind == "Polygon":
-        parts = [_polygon(coords, "Polygon")]
-    elif kind == "MultiPolygon":
-        if not isinstance(coords, (list, tuple)) or not coords:
-            raise _fail("MultiPolygon coordinates must be a non-empty list of polygons")
-        parts = [_polygon(p, f"MultiPolygon polygon {k}") for k, p in enumerate(coords)]
-    else:
-        raise _fail("type must be 'Polygon' or 'MultiPolygon'", kind)
-    world = shapely.box(-180.0, -90.0, 180.0, 90.0)
-    pieces = []
-    for part in parts:
-        x0, _, x1, _ = part.bounds
-        for shift in range(math.floor((x0 + 180.0) / 360.0), math.floor((x1 + 180.0) / 360.0) + 1):
-            moved = shapely.affinity.translate(part, -360.0 * shift)
-            piece = shapely.intersection(moved, world)
-            if not piece.is_empty:
-                pieces.append(piece)
-    merged = shapely.union_all(pieces) if pieces else shapely.Polygon()
-    return shapely.make_valid(merged) if not merged.is_valid else merged
-
-
-def vertex_count(geometry) -> int:
-    """Number of positions in a GeoJSON Polygon/MultiPolygon (for request limits)."""
-    coords = geometry.get("coordinates") if isinstance(geometry, dict) else None
-    if geometry.get("type") == "Polygon":
-        return sum(len(r) for r in coords or [])
-    return sum(len(r) for p in coords or [] for r in p)

@@ -52,41 +52,44 @@ def encode(level, region, i, j) -> np.ndarray:
     )
 
 
-def _first_bad(mask: np.ndarray) -> int | tuple[int, ...]:
+def first_bad(mask: np.ndarray) -> int | tuple[int, ...]:
+    """Position of the first True in a mask: an int for 1-d arrays, else a tuple."""
     where = np.argwhere(mask)[0]
     return int(where[0]) if where.size == 1 else tuple(int(w) for w in where)
+
+
+def refuse(parameter: str, arr: np.ndarray, bad: np.ndarray, allowed: str) -> GridError:
+    """The error for the first bad element of an argument (its position for arrays)."""
+    index = None if arr.ndim == 0 else first_bad(bad)
+    return GridError(parameter, pick(arr, bad), allowed, index=index)
 
 
 def as_zones(zones, parameter: str = "zones") -> np.ndarray:
     """Validate zone ids and return them as a uint64 array (same shape)."""
     arr = np.asarray(zones)
     if arr.dtype.kind in "US" or arr.dtype == object:
-        raise GridError(parameter, _scalar(arr), "uint64 zone ids (use zone_from_text for text)")
+        raise GridError(parameter, scalar(arr), "uint64 zone ids (use zone_from_text for text)")
     if arr.dtype.kind == "f":
         bad = ~np.isfinite(arr) | (arr != np.floor(arr)) | (arr <= 0) | (arr >= 2.0**53)
         if bad.any():
-            idx = _first_bad(bad) if arr.ndim else None
-            raise GridError(parameter, _pick(arr, bad), "a valid zone id", index=idx)
+            raise refuse(parameter, arr, bad, "a valid zone id")
     elif arr.dtype.kind == "i":
         if (arr <= 0).any():
-            bad = arr <= 0
-            idx = _first_bad(bad) if arr.ndim else None
-            raise GridError(parameter, _pick(arr, bad), "a valid zone id", index=idx)
+            raise refuse(parameter, arr, arr <= 0, "a valid zone id")
     elif arr.dtype.kind != "u":
-        raise GridError(parameter, _scalar(arr), "uint64 zone ids")
+        raise GridError(parameter, scalar(arr), "uint64 zone ids")
     ids = arr.astype(np.uint64)
-    _level, _region, _i, _j, bad = _decode_unchecked(ids)
+    bad = _decode_unchecked(ids)[4]
     if bad.any():
-        idx = _first_bad(bad) if ids.ndim else None
-        raise GridError(parameter, _pick(ids, bad), "a valid zone id", index=idx)
+        raise refuse(parameter, ids, bad, "a valid zone id")
     return ids
 
 
-def _scalar(arr: np.ndarray):
+def scalar(arr: np.ndarray):
     return arr.item() if arr.size == 1 else arr.ravel()[0].item() if arr.size else arr
 
 
-def _pick(arr: np.ndarray, bad: np.ndarray):
+def pick(arr: np.ndarray, bad: np.ndarray):
     value = arr[bad].ravel()[0] if arr.ndim else arr
     return value.item() if hasattr(value, "item") else value
 

@@ -14,9 +14,14 @@ import pyproj
 import shapely
 
 from alveary.grid import _ids
-from alveary.grid._authalic import R_AUTHALIC, authalic_to_geodetic, geodetic_to_authalic
+from alveary.grid._authalic import (
+    R_AUTHALIC,
+    authalic_to_geodetic,
+    geodetic_to_authalic,
+    geodetic_to_xyz,
+)
 from alveary.grid._hierarchy import children
-from alveary.grid._lattice import ids_to_xyz
+from alveary.grid._lattice import ids_to_xyz, xyz_to_ids
 from alveary.grid._snyder import EDGE, lonlat_to_xyz, xyz_to_lonlat
 
 _GEOD = pyproj.Geod(ellps="WGS84")
@@ -59,6 +64,7 @@ def search(level: int, near, inside) -> np.ndarray:
 
 
 def in_radius(lat: float, lon: float, meters: float, level: int):
+    """(ids, distances) of zones whose centres lie within ``meters``, and the point's own."""
     beta0 = float(geodetic_to_authalic(lat))
     centre = lonlat_to_xyz(beta0, lon)
     # WGS84 geodesics and authalic-sphere arcs differ by well under 1 % (common practice).
@@ -72,6 +78,9 @@ def in_radius(lat: float, lon: float, meters: float, level: int):
         return np.asarray(dist) <= meters
 
     ids = search(level, near, inside)
+    own = xyz_to_ids(geodetic_to_xyz(np.float64(lat), np.float64(lon)), level)
+    if own not in ids:  # the point's own zone, whose centre may lie farther away
+        ids = np.sort(np.append(ids, own))
     la, lo = centres_deg(ids)
     _, _, dist = _GEOD.inv(np.full(la.shape, lon), np.full(la.shape, lat), lo, la)
     return ids, np.asarray(dist, dtype=np.float64)
