@@ -20,7 +20,6 @@ N_POINTS = 1_000_000
 LEVEL = 15
 REPEATS = 3
 DISK_CALLS = 300
-R_AUTHALIC = 6371007.18091875  # +R for PROJ's isea (the WGS84 authalic radius)
 
 # An invented quadrilateral over open ocean, about 600 km across.
 POLYGON = {
@@ -51,8 +50,8 @@ def main() -> None:
     lat = np.degrees(np.arcsin(rng.uniform(-1.0, 1.0, N_POINTS)))
     lon = rng.uniform(-180.0, 180.0, N_POINTS)
 
-    sphere = pyproj.CRS.from_proj4(f"+proj=longlat +R={R_AUTHALIC} +no_defs")
-    plane = pyproj.CRS.from_proj4(f"+proj=isea +R={R_AUTHALIC} +no_defs")
+    sphere = pyproj.CRS.from_proj4(f"+proj=longlat +R={grid.R_AUTHALIC!r} +no_defs")
+    plane = pyproj.CRS.from_proj4(f"+proj=isea +R={grid.R_AUTHALIC!r} +no_defs")
     isea = pyproj.Transformer.from_crs(sphere, plane, always_xy=True)
 
     t_ours, zones = best_of(lambda: grid.point_to_zone(lat, lon, LEVEL))

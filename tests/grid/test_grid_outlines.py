@@ -124,7 +124,7 @@ def test_pentagons_are_five_sixths(ref, level):
     # cross the face edges at the vertex, so its five corners alone make a polygon 2.6 %
     # (level 3) to 3.9 % (level 8 on) too large; the outline traced by the lattice model
     # and the grid's own outline both measure 5/6.
-    share = 5 / 6
+    share = grid.PENTAGON_SHARE  # 5/6 by the design notes, checked in test_grid_counts
     for zone in pentagons(level):
         corners = np.asarray(grid.zone_boundary(np.uint64(zone), corners_only=True))
         assert corners.shape == (5, 2)

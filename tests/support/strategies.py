@@ -1,7 +1,8 @@
 """Shared hypothesis strategies: places on the globe, levels and zone ids.
 
 Zone ids are built from the contract's bit layout (support.samples.layout_id), so that
-a strategy never depends on the code under test.
+a strategy never depends on the code under test; only the grid's MAX_LEVEL is taken from
+it (checked against the contract in tests/grid/test_grid_counts.py).
 """
 
 from __future__ import annotations
@@ -10,9 +11,8 @@ import math
 
 from hypothesis import strategies as st
 
+from alveary.grid import MAX_LEVEL
 from support.samples import NORTH_APEX, SOUTH_APEX, layout_id
-
-MAX_LEVEL = 24  # grid-api.md
 
 
 def levels(min_level: int = 0, max_level: int = MAX_LEVEL) -> st.SearchStrategy[int]:

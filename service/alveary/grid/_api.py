@@ -147,7 +147,7 @@ def zone_boundary(zone: Any, *, corners_only: bool = False) -> npt.NDArray[np.fl
     ids = _ids.as_zones(zone, "zone")
     flat = ids.reshape(-1)
     if corners_only:
-        xyz = _lattice.boundaries(flat)
+        xyz = _outline.corners(flat)
     else:
         xyz = _outline.padded(*_outline.outlines(flat))
     beta, lon = xyz_to_lonlat(xyz)

@@ -79,15 +79,36 @@ def _points(strip: Ints, p: Floats, n3: int) -> Floats:
     return chart_to_xyz(region, a / n3, b / n3)
 
 
+def _corners(strip: Ints, a: Ints, b: Ints, n3: int) -> tuple[Floats, npt.NDArray[np.bool_]]:
+    """Zones' six corners in their strip's chart, in thirds (N, 6, 2), and which edges
+    are real: a pentagon's corners k and k + 1 fold onto one point for one k."""
+    corner = (3 * np.stack([a, b], axis=-1)[:, None, :] + CORNERS3).astype(np.float64)
+    region, ka, kb = canonical(strip[:, None], corner[..., 0], corner[..., 1], n3)
+    key = (region * n3 * 8 + ka) * n3 * 4 + kb
+    return corner, key != np.roll(key, -1, axis=1)
+
+
+def corners(ids: Ids) -> Floats:
+    """(N, 6, 3) unit vectors of validated zones' corners, CCW; a pentagon's sixth is NaN."""
+    level, strip, a, b = ids_to_chart(ids)
+    out = np.full((ids.size, 6, 3), np.nan)
+    for lv in np.unique(level).tolist():
+        sel = level == lv
+        n3 = 3 * (1 << int(lv))
+        corner, real = _corners(strip[sel], a[sel], b[sel], n3)
+        xyz = _points(np.repeat(strip[sel][:, None], 6, axis=1), corner, n3)
+        xyz[~real] = np.nan
+        order = np.argsort(~real, axis=-1, kind="stable")
+        out[sel] = np.take_along_axis(xyz, order[..., None], axis=-2)
+    return out
+
+
 def _level_outlines(strip: Ints, a: Ints, b: Ints, level: int) -> tuple[Floats, Ints]:
     """(points (P, 3), zone number of each point) for zones of one level, CCW per zone."""
     n3 = 3 * (1 << level)
     count = strip.size
-    corner = (3 * np.stack([a, b], axis=-1)[:, None, :] + CORNERS3).astype(np.float64)
+    corner, real = _corners(strip, a, b, n3)
     nxt = np.roll(corner, -1, axis=1)
-    region, ka, kb = canonical(strip[:, None], corner[..., 0], corner[..., 1], n3)
-    key = (region * n3 * 8 + ka) * n3 * 4 + kb
-    real = key != np.roll(key, -1, axis=1)  # a pentagon's sixth edge folds onto a point
     lam = _crossings(corner, nxt, n3)  # (N, 6, 6)
     breaks = np.concatenate([np.zeros((count, 6, 1)), lam], axis=-1)  # (N, 6, 7)
     ends = np.concatenate([lam, np.ones((count, 6, 1))], axis=-1)
