@@ -324,3 +324,37 @@ def test_tiny_radius_at_a_centre_is_that_zone():
     got = np.asarray(grid.zones_in_radius(float(lat), float(lon), 1e-3, 10))
     assert got.tolist() == [int(zone)]
     assert np.asarray(grid.zones_in_radius(float(lat), float(lon), 0.0, 10)).tolist() == [int(zone)]
+
+
+# -- one point at a time ------------------------------------------------------------------
+
+
+def test_single_points_and_zones_agree_with_the_lattice_model_and_arrays(ref):
+    # Single points and zones take a path of plain floats (a GPS fix at a time); judged
+    # here by the lattice model like the array path, and equal to it point by point.
+    rng = np.random.default_rng(21)
+    lat = np.concatenate(
+        [np.array(AWKWARD_POINTS)[:, 0], np.degrees(np.arcsin(rng.uniform(-1, 1, 300)))]
+    )
+    lon = np.concatenate([np.array(AWKWARD_POINTS)[:, 1], rng.uniform(-540, 540, 300)])
+    vlat, vlon = ref.vertex_geodetic.T
+    lat, lon = np.concatenate([lat, vlat]), np.concatenate([lon, vlon])
+    for level in (0, 1, 5, 12, 19, 24):
+        arrays = grid.point_to_zone(lat, lon, level)
+        singles = np.array([grid.point_to_zone(a, b, level) for a, b in zip(lat, lon, strict=True)])
+        assert np.array_equal(arrays, singles), level
+        expected, margin = ref.locate(lat, np.asarray(lon), level)
+        clear = margin > 1e-6
+        assert (singles[clear] == expected[clear]).all(), level
+        clat, clon = grid.zone_to_point(arrays)
+        for k, zone in enumerate(arrays[:40]):
+            one_lat, one_lon = grid.zone_to_point(zone)  # longitude is arbitrary at a pole
+            assert GEOD.inv(one_lon, one_lat, clon[k], clat[k])[2] < 1e-6
+            assert grid.zone_to_text(zone) == grid.zone_to_text(arrays[k : k + 1])[0]
+            assert grid.is_pentagon(int(zone)) == grid.is_pentagon(arrays)[k]
+            assert [int(x) for x in grid.zone_to_index(zone)] == [
+                int(x[k]) for x in grid.zone_to_index(arrays)
+            ]
+        few = arrays[:5]
+        np.testing.assert_allclose(grid.zone_to_point(few)[0], clat[:5], rtol=0, atol=1e-12)
+        assert np.array_equal(grid.zone_level(few), np.full(5, level))

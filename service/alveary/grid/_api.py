@@ -8,19 +8,38 @@ import numpy as np
 import numpy.typing as npt
 
 from alveary._errors import GridError
-from alveary.grid import _geojson, _hierarchy, _ids, _lattice, _outline, _regions
+from alveary.grid import _geojson, _hierarchy, _ids, _lattice, _one, _outline, _regions
 from alveary.grid._authalic import EARTH_AREA, authalic_to_geodetic, geodetic_to_xyz
-from alveary.grid._checks import check_lat_lon, steps
+from alveary.grid._checks import check_lat_lon, scalar_lat_lon, steps
 from alveary.grid._disk import disk as _disk
 from alveary.grid._ids import MAX_LEVEL, check_level
 from alveary.grid._snyder import xyz_to_lonlat
+
+Ids = npt.NDArray[np.uint64]
+Ints = npt.NDArray[np.int64]
+Floats = npt.NDArray[np.float64]
+Bools = npt.NDArray[np.bool_]
 
 _ALL_ZONES_MAX = 10
 #: A pentagon's area as a share of a hexagon's at the same level.
 PENTAGON_SHARE = 5.0 / 6.0
 
 
-def _one_zone(zone: Any, parameter: str = "zone") -> np.uint64:
+def _fields(zones: Any) -> tuple[Any, ...] | None:
+    """(level, region, i, j) of one zone or a few, decoded as ints; None for big arrays.
+
+    Scalars give np.int64 scalars, a small 1-d array gives int64 arrays.
+    """
+    few = _one.zone_ints(zones)
+    if few is None:
+        return None
+    columns = tuple(
+        np.array(c, dtype=np.int64) for c in zip(*map(_ids.decode_int, few), strict=True)
+    )
+    return columns if isinstance(zones, np.ndarray) else tuple(c[0] for c in columns)
+
+
+def _one_zone(zone: Any, parameter: str = "zone") -> Ids:
     ids = _ids.as_zones(zone, parameter)
     if ids.size != 1:
         raise GridError(parameter, f"array of shape {ids.shape}", "a single zone id")
@@ -33,7 +52,7 @@ def zone_count(level: int) -> int:
     >>> zone_count(0), zone_count(3)
     (12, 642)
     """
-    return 10 * 4 ** check_level(level) + 2
+    return int(10 * 4 ** check_level(level) + 2)
 
 
 def zone_area(level: int) -> float:
@@ -45,7 +64,7 @@ def zone_area(level: int) -> float:
     return float(EARTH_AREA / (10 * 4 ** check_level(level)))
 
 
-def zone_areas(zones) -> np.ndarray:
+def zone_areas(zones: Any) -> Floats:
     """Area in m² of each zone: ``zone_area(level)`` for hexagons, 5/6 of it for pentagons.
 
     >>> a = zone_areas(all_zones(1))
@@ -55,10 +74,11 @@ def zone_areas(zones) -> np.ndarray:
     ids = _ids.as_zones(zones)
     level = _ids.decode(ids)[0]
     full = EARTH_AREA / (10.0 * np.power(4.0, level))
-    return np.where(is_pentagon(ids), full * PENTAGON_SHARE, full)
+    areas: Floats = np.where(is_pentagon(ids), full * PENTAGON_SHARE, full)
+    return areas
 
 
-def point_to_zone(lat, lon, level: int) -> np.ndarray:
+def point_to_zone(lat: Any, lon: Any, level: int) -> Ids | np.uint64:
     """Zone ids (uint64) of WGS84 geodetic points, in degrees, at a level.
 
     Longitudes wrap, so 190 is -170.
@@ -69,9 +89,14 @@ def point_to_zone(lat, lon, level: int) -> np.ndarray:
     ['9c-17-37', '9a-829-376']
     """
     level = check_level(level)
+    if _one.is_number(lat) and _one.is_number(lon):  # one point: no arrays at all
+        return np.uint64(_one.point_to_id(*scalar_lat_lon(float(lat), float(lon), True), level))
     la, lo = check_lat_lon(lat, lon, wrap=True)
     shape = la.shape
     la, lo = la.reshape(-1), lo.reshape(-1)
+    if 0 < la.size <= _one.SMALL:  # a handful of points: one by one in plain floats
+        ids = [_one.point_to_id(a, b, level) for a, b in zip(la.tolist(), lo.tolist(), strict=True)]
+        return np.array(ids, dtype=np.uint64).reshape(shape)
     out = np.empty(la.shape, dtype=np.uint64)
     for s in range(0, la.size, _lattice.BLOCK):  # blocks that stay in cache
         block = slice(s, s + _lattice.BLOCK)
@@ -79,13 +104,21 @@ def point_to_zone(lat, lon, level: int) -> np.ndarray:
     return out.reshape(shape) if shape else out[0]
 
 
-def zone_to_point(zones) -> tuple[np.ndarray, np.ndarray]:
+def zone_to_point(zones: Any) -> tuple[Any, Any]:
     """(lat, lon) in degrees, WGS84 geodetic, of zone centres.
 
     >>> lat, lon = zone_to_point(zone_from_text("0n"))
     >>> round(float(lat), 6), float(lon)  # the northern apex: an icosahedron vertex
     (58.397145, 11.25)
     """
+    few = _one.zone_ints(zones)
+    if few is not None:  # one zone, or a handful: plain floats
+        lat, lon = (
+            np.array(c, dtype=np.float64) for c in zip(*map(_one.id_to_point, few), strict=True)
+        )
+        if not isinstance(zones, np.ndarray):
+            return lat[0], lon[0]
+        return lat, lon
     ids = _ids.as_zones(zones)
     flat = ids.reshape(-1)
     lat, lon = np.empty(flat.shape), np.empty(flat.shape)
@@ -98,27 +131,34 @@ def zone_to_point(zones) -> tuple[np.ndarray, np.ndarray]:
     return lat.reshape(ids.shape), lon.reshape(ids.shape)
 
 
-def zone_level(zones) -> np.ndarray:
+def zone_level(zones: Any) -> Ints | np.int64:
     """Refinement level of each zone.
 
     >>> zone_level(point_to_zone(0.0, 0.0, 7)).item()
     7
     """
-    return _ids.decode(_ids.as_zones(zones))[0]
+    fields = _fields(zones)
+    level: Ints | np.int64 = fields[0] if fields else _ids.decode(_ids.as_zones(zones))[0]
+    return level
 
 
-def is_pentagon(zones) -> np.ndarray:
+def is_pentagon(zones: Any) -> Bools | np.bool_:
     """Whether each zone is one of the twelve pentagons (icosahedron vertices) of its level.
 
     >>> int(is_pentagon(all_zones(4)).sum())
     12
     """
+    few = _one.zone_ints(zones)
+    if few is not None:
+        flags: Bools = np.array([_one.is_pentagon(z) for z in few])
+        return flags if isinstance(zones, np.ndarray) else flags[0]
     level, _strip, a, b = _lattice.ids_to_chart(_ids.as_zones(zones))
     n = np.left_shift(1, level)
-    return (a % n == 0) & (b % n == 0)
+    vertex: Bools = (a % n == 0) & (b % n == 0)
+    return vertex
 
 
-def zone_boundary(zone: Any, *, corners_only: bool = False) -> npt.NDArray[np.float64]:
+def zone_boundary(zone: Any, *, corners_only: bool = False) -> Floats:
     """The outline of a zone: (lat, lon) points, counter-clockwise seen from outside the Earth.
 
     By default the true outline. A zone is straight-edged in the plane of each face of the
@@ -151,7 +191,7 @@ def zone_boundary(zone: Any, *, corners_only: bool = False) -> npt.NDArray[np.fl
     else:
         xyz = _outline.padded(*_outline.outlines(flat))
     beta, lon = xyz_to_lonlat(xyz)
-    out = np.stack([authalic_to_geodetic(beta), lon], axis=-1)
+    out: Floats = np.stack([authalic_to_geodetic(beta), lon], axis=-1)
     if ids.ndim == 0:
         out = out[0]
         return out[~np.isnan(out[:, 0])]
@@ -177,7 +217,7 @@ def zone_to_geojson(zones: Any) -> dict[str, Any] | list[dict[str, Any]]:
     return out[0] if ids.ndim == 0 else out
 
 
-def zone_neighbors(zone) -> np.ndarray:
+def zone_neighbors(zone: Any) -> Ids:
     """The 6 (or 5 for pentagons) adjacent zones, counter-clockwise.
 
     An array of N zones gives (N, 6), with 0 in the last column of pentagons.
@@ -186,13 +226,15 @@ def zone_neighbors(zone) -> np.ndarray:
     (6, 5)
     """
     ids = _ids.as_zones(zone, "zone")
-    out = _lattice.neighbors(ids.reshape(-1))
+    out: Ids = _lattice.neighbors(ids.reshape(-1))
     if ids.ndim == 0:
-        return out[0][out[0] != 0]
+        first: Ids = out[0]
+        present: Ids = first[first != 0]
+        return present
     return out.reshape((*ids.shape, 6))
 
 
-def zone_disk(zone, k: int, *, return_steps: bool = False):
+def zone_disk(zone: Any, k: int, *, return_steps: bool = False) -> Ids | tuple[Ids, Ints]:
     """Every zone within k steps of a zone (itself included), ids ascending.
 
     With ``return_steps`` also each zone's step count from the centre zone.
@@ -204,17 +246,18 @@ def zone_disk(zone, k: int, *, return_steps: bool = False):
     return (ids, steps_) if return_steps else ids
 
 
-def zone_ring(zone, k: int) -> np.ndarray:
+def zone_ring(zone: Any, k: int) -> Ids:
     """The zones exactly k steps from a zone, ids ascending.
 
     >>> len(zone_ring(point_to_zone(10.0, 20.0, 12), 3))  # 6k
     18
     """
     ids, steps_ = _disk(_one_zone(zone), steps(k))
-    return ids[steps_ == k]
+    ring: Ids = ids[steps_ == k]
+    return ring
 
 
-def zone_parent(zones) -> np.ndarray:
+def zone_parent(zones: Any) -> Ids:
     """The zone one level coarser that contains each zone's centre.
 
     An edge child's centre lies on the edge between two coarser zones; its parent is the
@@ -231,7 +274,7 @@ def zone_parent(zones) -> np.ndarray:
     return _hierarchy.parents(ids)
 
 
-def zone_children(zone) -> tuple[np.ndarray, np.ndarray]:
+def zone_children(zone: Any) -> tuple[Ids, Floats]:
     """(ids, weights) of a zone's children one level finer.
 
     The central child comes first with weight 1; each edge child is cut in half by the
@@ -254,7 +297,7 @@ def zone_children(zone) -> tuple[np.ndarray, np.ndarray]:
     return kids.reshape((*ids.shape, 7)), weights.reshape((*ids.shape, 7))
 
 
-def all_zones(level: int) -> np.ndarray:
+def all_zones(level: int) -> Ids:
     """Every zone of a level (levels up to 10), ids ascending.
 
     >>> len(all_zones(2))
@@ -266,7 +309,7 @@ def all_zones(level: int) -> np.ndarray:
     return _regions.every_zone(level)
 
 
-def zone_to_text(zones) -> np.ndarray:
+def zone_to_text(zones: Any) -> npt.NDArray[np.object_] | np.str_:
     """The readable text form: level, strip letter, row and column (``"12b-3021-877"``).
 
     The two apexes are ``"<level>n"`` and ``"<level>s"``.
@@ -274,10 +317,17 @@ def zone_to_text(zones) -> np.ndarray:
     >>> str(zone_to_text(index_to_zone(12, 1, 3021, 877)))
     '12b-3021-877'
     """
-    return _ids.to_text(_ids.as_zones(zones))
+    fields = _fields(zones)
+    if fields is None:
+        return _ids.to_text(_ids.as_zones(zones))
+    if not isinstance(zones, np.ndarray):
+        return np.str_(_ids.text_of(*(int(f) for f in fields)))
+    return np.array(
+        [_ids.text_of(*f) for f in zip(*(f.tolist() for f in fields), strict=True)], dtype=object
+    )
 
 
-def zone_from_text(texts) -> np.ndarray:
+def zone_from_text(texts: Any) -> Ids:
     """Zone ids of text forms; the inverse of :func:`zone_to_text`.
 
     >>> int(zone_from_text("0n"))
@@ -286,7 +336,7 @@ def zone_from_text(texts) -> np.ndarray:
     return _ids.from_text(texts)
 
 
-def zone_to_index(zones) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def zone_to_index(zones: Any) -> tuple[Any, Any, Any, Any]:
     """(level, region, i, j): the array position of zones in the five-strip layout.
 
     Regions 0..4 are strips (i in [0, 2n), j in [0, n), n = 2**level); 5 and 6 are the
@@ -295,10 +345,11 @@ def zone_to_index(zones) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray
     >>> [int(x) for x in zone_to_index(zone_from_text("12b-3021-877"))]
     [12, 1, 3021, 877]
     """
-    return _ids.decode(_ids.as_zones(zones))
+    fields = _fields(zones)
+    return fields if fields is not None else _ids.decode(_ids.as_zones(zones))
 
 
-def index_to_zone(level, region, i, j) -> np.ndarray:
+def index_to_zone(level: Any, region: Any, i: Any, j: Any) -> Ids:
     """Zone ids of array positions (level, region, i, j); arguments broadcast.
 
     >>> str(zone_to_text(index_to_zone(3, 6, 0, 0)))

@@ -15,8 +15,8 @@ from alveary.grid._lattice import chart_to_ids, ids_to_chart, neighbors
 
 def _hex_offsets(k: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     r = np.arange(-k, k + 1)
-    da, db = np.meshgrid(r, r, indexing="ij")
-    da, db = da.ravel(), db.ravel()
+    grid_a, grid_b = np.meshgrid(r, r, indexing="ij")
+    da, db = grid_a.ravel(), grid_b.ravel()
     steps = np.maximum(np.maximum(np.abs(da), np.abs(db)), np.abs(da + db))
     keep = steps <= k
     return da[keep], db[keep], steps[keep]
@@ -31,7 +31,7 @@ def _reaches_vertex(a: int, b: int, n: int, k: int) -> bool:
     return bool(dist.min() <= k)
 
 
-def disk(zone: np.uint64, k: int) -> tuple[np.ndarray, np.ndarray]:
+def disk(zone: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     """(ids ascending, steps) of every zone within k steps of one zone."""
     level, strip, a, b = (int(x) for x in ids_to_chart(np.asarray(zone)))
     n = 1 << level
@@ -40,10 +40,10 @@ def disk(zone: np.uint64, k: int) -> tuple[np.ndarray, np.ndarray]:
         ids = chart_to_ids(level, strip, a + da, b + db)
         order = np.argsort(ids)
         return ids[order], steps[order]
-    return _bfs(np.uint64(zone), k)
+    return _bfs(np.asarray(zone, dtype=np.uint64), k)
 
 
-def _bfs(zone: np.uint64, k: int) -> tuple[np.ndarray, np.ndarray]:
+def _bfs(zone: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
     seen = np.array([zone], dtype=np.uint64)
     steps = [np.zeros(1, dtype=np.int64)]
     rings = [seen]

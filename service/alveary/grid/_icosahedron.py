@@ -35,12 +35,14 @@ def _vertices() -> np.ndarray:
     def direct(azimuth_deg: float, distance: float) -> np.ndarray:
         az = np.radians(azimuth_deg)
         heading = np.cos(az) * north + np.sin(az) * east
-        return np.cos(distance) * p + np.sin(distance) * heading
+        out: np.ndarray = np.cos(distance) * p + np.sin(distance) * heading
+        return out
 
     ns = [direct(72.0 * k, arc) for k in range(5)]
     ss = [direct(72.0 * k + 36.0, np.pi - arc) for k in range(5)]
     v = np.array([p, *ns, *ss, -p])
-    return v / np.linalg.norm(v, axis=1, keepdims=True)
+    out: np.ndarray = v / np.linalg.norm(v, axis=1, keepdims=True)
+    return out
 
 
 #: (12, 3) unit vectors of the vertices on the authalic sphere.

@@ -16,10 +16,16 @@ and ``"12n"`` / ``"12s"`` for the apexes.
 from __future__ import annotations
 
 import re
+from typing import Any
 
 import numpy as np
+import numpy.typing as npt
 
 from alveary._errors import GridError
+
+Ids = npt.NDArray[np.uint64]
+Ints = npt.NDArray[np.int64]
+Bools = npt.NDArray[np.bool_]
 
 MAX_LEVEL = 24
 NORTH, SOUTH = 5, 6
@@ -27,7 +33,7 @@ _LETTERS = "abcdens"
 _TEXT = re.compile(r"^(\d{1,2})([a-e])-(\d+)-(\d+)$|^(\d{1,2})([ns])$")
 
 
-def check_level(level, parameter: str = "level") -> int:
+def check_level(level: Any, parameter: str = "level") -> int:
     """Validate a refinement level and return it as an int."""
     try:
         value = int(level)
@@ -39,32 +45,33 @@ def check_level(level, parameter: str = "level") -> int:
     return value
 
 
-def encode(level, region, i, j) -> np.ndarray:
+def encode(level: Any, region: Any, i: Any, j: Any) -> Ids:
     """Ids from (level, region, i, j); arguments broadcast, no validation."""
     level = np.asarray(level, dtype=np.uint64)
     two = np.uint64(2)
     one = np.uint64(1)
-    return (
+    out: Ids = (
         (one << (two * level + np.uint64(4)))
         | (np.asarray(region, dtype=np.uint64) << (two * level + one))
         | (np.asarray(i, dtype=np.uint64) << level)
         | np.asarray(j, dtype=np.uint64)
     )
+    return out
 
 
-def first_bad(mask: np.ndarray) -> int | tuple[int, ...]:
+def first_bad(mask: Bools) -> int | tuple[int, ...]:
     """Position of the first True in a mask: an int for 1-d arrays, else a tuple."""
     where = np.argwhere(mask)[0]
     return int(where[0]) if where.size == 1 else tuple(int(w) for w in where)
 
 
-def refuse(parameter: str, arr: np.ndarray, bad: np.ndarray, allowed: str) -> GridError:
+def refuse(parameter: str, arr: npt.NDArray[Any], bad: Bools, allowed: str) -> GridError:
     """The error for the first bad element of an argument (its position for arrays)."""
     index = None if arr.ndim == 0 else first_bad(bad)
     return GridError(parameter, pick(arr, bad), allowed, index=index)
 
 
-def as_zones(zones, parameter: str = "zones") -> np.ndarray:
+def as_zones(zones: Any, parameter: str = "zones") -> Ids:
     """Validate zone ids and return them as a uint64 array (same shape)."""
     arr = np.asarray(zones)
     if arr.dtype.kind in "US" or arr.dtype == object:
@@ -78,23 +85,23 @@ def as_zones(zones, parameter: str = "zones") -> np.ndarray:
             raise refuse(parameter, arr, arr <= 0, "a valid zone id")
     elif arr.dtype.kind != "u":
         raise GridError(parameter, scalar(arr), "uint64 zone ids")
-    ids = arr.astype(np.uint64)
+    ids: Ids = arr.astype(np.uint64)
     bad = _decode_unchecked(ids)[4]
     if bad.any():
         raise refuse(parameter, ids, bad, "a valid zone id")
     return ids
 
 
-def scalar(arr: np.ndarray):
+def scalar(arr: npt.NDArray[Any]) -> Any:
     return arr.item() if arr.size == 1 else arr.ravel()[0].item() if arr.size else arr
 
 
-def pick(arr: np.ndarray, bad: np.ndarray):
+def pick(arr: npt.NDArray[Any], bad: Bools) -> Any:
     value = arr[bad].ravel()[0] if arr.ndim else arr
     return value.item() if hasattr(value, "item") else value
 
 
-def _decode_unchecked(ids: np.ndarray):
+def _decode_unchecked(ids: Ids) -> tuple[Ints, Ints, Ints, Ints, Bools]:
     big = ids >= np.uint64(1 << 53)
     safe = np.where(big | (ids == 0), np.uint64(1 << 4), ids)
     _, exponent = np.frexp(safe.astype(np.float64))  # bit length; exact below 2**53
@@ -112,28 +119,56 @@ def _decode_unchecked(ids: np.ndarray):
     return level, region, i, j, bad
 
 
-def decode(ids: np.ndarray):
+def decode(ids: Ids) -> tuple[Ints, Ints, Ints, Ints]:
     """(level, region, i, j) int64 arrays of validated uint64 ids."""
     level, region, i, j, _ = _decode_unchecked(ids)
     return level, region, i, j
 
 
-def to_text(ids: np.ndarray) -> np.ndarray:
+def decode_int(zone: int) -> tuple[int, int, int, int] | None:
+    """(level, region, i, j) of one id as a Python int, or None if it is not a zone id."""
+    if zone <= 0 or zone >= 1 << 53:
+        return None
+    twice = zone.bit_length() - 5
+    if twice < 0 or twice % 2:
+        return None
+    level = twice // 2
+    region = (zone >> (2 * level + 1)) & 7
+    i = (zone >> level) & ((1 << (level + 1)) - 1)
+    j = zone & ((1 << level) - 1)
+    if region > SOUTH or (region >= NORTH and (i or j)):
+        return None
+    return level, region, i, j
+
+
+def encode_int(level: int, region: int, i: int, j: int) -> int:
+    """One id from (level, region, i, j), as a Python int; no validation."""
+    return 1 << (2 * level + 4) | region << (2 * level + 1) | i << level | j
+
+
+def text_of(level: int, region: int, i: int, j: int) -> str:
+    """The text form of one zone."""
+    if region >= NORTH:
+        return f"{level}{_LETTERS[region]}"
+    return f"{level}{_LETTERS[region]}-{i}-{j}"
+
+
+def to_text(ids: Ids) -> npt.NDArray[np.object_] | np.str_:
     level, region, i, j = decode(ids)
     flat = [
-        f"{lv}{_LETTERS[r]}" if r >= NORTH else f"{lv}{_LETTERS[r]}-{ii}-{jj}"
-        for lv, r, ii, jj in zip(
+        text_of(*fields)
+        for fields in zip(
             level.ravel().tolist(),
             region.ravel().tolist(),
             i.ravel().tolist(),
             j.ravel().tolist(),
-            strict=False,
+            strict=True,
         )
     ]
     return np.array(flat, dtype=object).reshape(ids.shape) if ids.ndim else np.str_(flat[0])
 
 
-def from_text(texts) -> np.ndarray:
+def from_text(texts: Any) -> Ids:
     arr = np.asarray(texts, dtype=object)
     out = np.empty(arr.shape, dtype=np.uint64)
     for idx, text in np.ndenumerate(arr):
@@ -154,5 +189,5 @@ def from_text(texts) -> np.ndarray:
                 f"level <= {MAX_LEVEL}, row < 2^(level+1), column < 2^level",
                 index=where,
             )
-        out[idx] = encode(level, region, i, j)
+        out[idx] = encode_int(level, region, i, j)
     return out

@@ -9,11 +9,18 @@ are carried to their owner by the seam rules in :func:`canonical`.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
+import numpy.typing as npt
 
 from alveary.grid import _ids
 from alveary.grid._icosahedron import AXIAL_TO_CART, FACE_LATTICE, VERTICES
 from alveary.grid._snyder import _ROT, CIRCUMRADIUS, face_of, forward_sector, inverse
+from alveary.grid._xp import ARRAYS
+
+Floats = npt.NDArray[np.float64]
+Ints = npt.NDArray[np.int64]
 
 NORTH, SOUTH = _ids.NORTH, _ids.SOUTH
 
@@ -46,7 +53,7 @@ _TO_ST, _TO_XY, _OFFSET = _chart_maps()
 _TO_ST_SECTOR = np.einsum("fij,sjk->fsik", _TO_ST, _ROT).reshape(60, 2, 2)
 
 
-def canonical(strip, a, b, n):
+def canonical(strip: Any, a: Any, b: Any, n: int) -> tuple[Ints, Any, Any]:
     """Carry lattice points (a, b) of strip charts to their owner.
 
     Returns (region, a, b): region 0..4 with 0 < a <= 2n, 0 <= b < n, or NORTH / SOUTH
@@ -98,7 +105,7 @@ def canonical(strip, a, b, n):
     return region, a, b
 
 
-def chart_to_ids(level, strip, a, b) -> np.ndarray:
+def chart_to_ids(level: Any, strip: Any, a: Any, b: Any) -> npt.NDArray[np.uint64]:
     """Ids of lattice points (a, b) in strip charts at a level (carried to owners)."""
     n = 1 << int(level)
     region, a, b = canonical(strip, a, b, n)
@@ -106,7 +113,7 @@ def chart_to_ids(level, strip, a, b) -> np.ndarray:
     return _ids.encode(level, region, np.where(apex, 0, a - 1), b)
 
 
-def ids_to_chart(ids: np.ndarray):
+def ids_to_chart(ids: npt.NDArray[np.uint64]) -> tuple[Ints, Ints, Ints, Ints]:
     """(level, strip, a, b) of validated ids; apexes in strip 0's chart."""
     level, region, i, j = _ids.decode(ids)
     n = np.left_shift(1, level)
@@ -116,13 +123,14 @@ def ids_to_chart(ids: np.ndarray):
     return level, strip, a, b
 
 
-def strip_face(strip, s, t):
+def strip_face(strip: Any, s: Any, t: Any) -> Ints:
     """The face of a strip that holds chart point (s, t) (closed triangles)."""
     m = np.where(s + t <= 1.0, 0, np.where(s <= 1.0, 1, np.where(s + t < 2.0, 2, 3)))
-    return 4 * np.asarray(strip) + m
+    face: Ints = 4 * np.asarray(strip) + m
+    return face
 
 
-def chart_to_xyz(strip, s, t) -> np.ndarray:
+def chart_to_xyz(strip: Any, s: Any, t: Any) -> Floats:
     """Unit vectors of chart points (s, t) within the closed strip."""
     face = strip_face(strip, s, t)
     st = np.stack([s, t], axis=-1) - _OFFSET[face]
@@ -130,7 +138,7 @@ def chart_to_xyz(strip, s, t) -> np.ndarray:
     return inverse(face, xy[..., 0], xy[..., 1])
 
 
-def xyz_to_chart(xyz: np.ndarray):
+def xyz_to_chart(xyz: Floats) -> tuple[Ints, Floats, Floats]:
     """(strip, s, t) of unit vectors, in the chart of the strip holding their face."""
     face = face_of(xyz)
     x, y, sector = forward_sector(xyz, face)
@@ -141,15 +149,21 @@ def xyz_to_chart(xyz: np.ndarray):
     return face // 4, s, t
 
 
-def hex_round(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def round_hex(a: Any, b: Any, xp: Any) -> tuple[Any, Any]:
     """Nearest lattice point to axial (a, b): cube-coordinate rounding (common practice)."""
     c = -a - b
-    ra, rb, rc = np.rint(a), np.rint(b), np.rint(c)
-    da, db, dc = np.abs(ra - a), np.abs(rb - b), np.abs(rc - c)
+    ra, rb, rc = xp.rint(a), xp.rint(b), xp.rint(c)
+    da, db, dc = xp.abs(ra - a), xp.abs(rb - b), xp.abs(rc - c)
     fix_a = (da > db) & (da > dc)
-    fix_b = ~fix_a & (db > dc)
-    ra = np.where(fix_a, -rb - rc, ra)
-    rb = np.where(fix_b, -ra - rc, rb)
+    fix_b = (db > dc) & (da <= db)  # not fix_a, given db > dc
+    ra = xp.where(fix_a, -rb - rc, ra)
+    rb = xp.where(fix_b, -ra - rc, rb)
+    return ra, rb
+
+
+def hex_round(a: Floats, b: Floats) -> tuple[Ints, Ints]:
+    """:func:`round_hex` for arrays, as integers."""
+    ra, rb = round_hex(a, b, ARRAYS)
     return ra.astype(np.int64), rb.astype(np.int64)
 
 
@@ -192,7 +206,7 @@ _NORTH_RING = np.array([0, 4, 3, 2, 1])
 _SOUTH_RING = np.array([0, 1, 2, 3, 4])
 
 
-def neighbors(ids: np.ndarray) -> np.ndarray:
+def neighbors(ids: npt.NDArray[np.uint64]) -> npt.NDArray[np.uint64]:
     """(N, 6) neighbour ids counter-clockwise; pentagons have 0 in the last column."""
     level, strip, a, b = ids_to_chart(ids)
     region = _ids.decode(ids)[1]

@@ -157,7 +157,7 @@ def _polygon(rings: list[Any], where: Where) -> shapely.Polygon:
 def fold(poly: shapely.Polygon) -> list[shapely.Polygon]:
     """Cut a polygon with unwrapped longitudes at ±180 and move every piece into range."""
     west, _, east, _ = poly.bounds
-    pieces = []
+    pieces: list[shapely.Polygon] = []
     for k in range(math.floor((west + 180.0) / 360.0), math.floor((east + 180.0) / 360.0) + 1):
         moved = shapely.affinity.translate(poly, -360.0 * k) if k else poly
         piece = shapely.intersection(moved, _WORLD)

@@ -9,7 +9,10 @@ zone is missed; the reach bounds how far descendants stray outside it.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
+import numpy.typing as npt
 import pyproj
 import shapely
 
@@ -24,6 +27,14 @@ from alveary.grid._hierarchy import children
 from alveary.grid._lattice import ids_to_xyz, xyz_to_ids
 from alveary.grid._snyder import EDGE, lonlat_to_xyz, xyz_to_lonlat
 
+Floats = npt.NDArray[np.float64]
+Bools = npt.NDArray[np.bool_]
+Ids = npt.NDArray[np.uint64]
+#: near(xyz, beta, lon, reach): may the zones' descendants meet the region?
+Near = Callable[[Floats, Floats, Floats, float], Bools]
+#: inside(lat, lon): do the centres lie in the region?
+Inside = Callable[[Floats, Floats], Bools]
+
 _GEOD = pyproj.Geod(ellps="WGS84")
 _START_LEVEL = 3
 # Descendants' centres stay within 2/sqrt(3) lattice spacings in the plane; the plane is
@@ -31,7 +42,7 @@ _START_LEVEL = 3
 _REACH = 1.4 * EDGE
 
 
-def every_zone(level: int) -> np.ndarray:
+def every_zone(level: int) -> Ids:
     n = 1 << level
     i, j = np.meshgrid(np.arange(2 * n), np.arange(n), indexing="ij")
     strips = [_ids.encode(level, r, i.ravel(), j.ravel()) for r in range(5)]
@@ -39,13 +50,13 @@ def every_zone(level: int) -> np.ndarray:
     return np.sort(np.concatenate([*strips, apexes]))
 
 
-def centres_deg(ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def centres_deg(ids: Ids) -> tuple[Floats, Floats]:
     """Geodetic (lat, lon) of zone centres."""
     beta, lon = xyz_to_lonlat(ids_to_xyz(ids))
     return authalic_to_geodetic(beta), lon
 
 
-def search(level: int, near, inside) -> np.ndarray:
+def search(level: int, near: Near, inside: Inside) -> Ids:
     """Refine from a coarse level; ``near(xyz, lat, lon, reach_rad)`` and ``inside(lat, lon)``."""
     start = min(level, _START_LEVEL)
     ids = every_zone(start)
@@ -63,17 +74,18 @@ def search(level: int, near, inside) -> np.ndarray:
     raise AssertionError("unreachable")  # pragma: no cover
 
 
-def in_radius(lat: float, lon: float, meters: float, level: int):
+def in_radius(lat: float, lon: float, meters: float, level: int) -> tuple[Ids, Floats]:
     """(ids, distances) of zones whose centres lie within ``meters``, and the point's own."""
-    beta0 = float(geodetic_to_authalic(lat))
+    beta0 = geodetic_to_authalic(lat)
     centre = lonlat_to_xyz(beta0, lon)
     # WGS84 geodesics and authalic-sphere arcs differ by well under 1 % (common practice).
     arc = meters / R_AUTHALIC * 1.01 + 1e-9
 
-    def near(xyz, beta, lo, reach):
-        return np.arccos(np.clip(xyz @ centre, -1.0, 1.0)) <= arc + reach
+    def near(xyz: Floats, beta: Floats, lo: Floats, reach: float) -> Bools:
+        ok: Bools = np.arccos(np.clip(xyz @ centre, -1.0, 1.0)) <= arc + reach
+        return ok
 
-    def inside(la, lo):
+    def inside(la: Floats, lo: Floats) -> Bools:
         _, _, dist = _GEOD.inv(np.full(la.shape, lon), np.full(la.shape, lat), lo, la)
         return np.asarray(dist) <= meters
 
@@ -86,7 +98,7 @@ def in_radius(lat: float, lon: float, meters: float, level: int):
     return ids, np.asarray(dist, dtype=np.float64)
 
 
-def _reach_box(beta, lon, reach):
+def _reach_box(beta: Floats, lon: Floats, reach: float) -> tuple[Floats, Floats, Floats, Floats]:
     """A lon/lat box (geodetic latitude bounds are looser than authalic by < 0.2°)."""
     r = np.degrees(reach) + 0.2
     lat_lo, lat_hi = beta - r, beta + r
@@ -96,13 +108,13 @@ def _reach_box(beta, lon, reach):
     return lon - dlon, lat_lo, lon + dlon, lat_hi
 
 
-def in_bbox(west: float, south: float, east: float, north: float, level: int) -> np.ndarray:
+def in_bbox(west: float, south: float, east: float, north: float, level: int) -> Ids:
     spans = [(west, east)] if west <= east else [(west, 180.0), (-180.0, east)]
 
-    def lon_in(lo, a, b):
+    def lon_in(lo: Floats, a: float, b: float) -> Bools:
         return (lo >= a) & (lo <= b)
 
-    def near(xyz, beta, lon, reach):
+    def near(xyz: Floats, beta: Floats, lon: Floats, reach: float) -> Bools:
         x0, y0, x1, y1 = _reach_box(beta, lon, reach)
         lat_ok = (y1 >= south) & (y0 <= north)
         lon_ok = np.zeros(lon.shape, dtype=bool)
@@ -111,7 +123,7 @@ def in_bbox(west: float, south: float, east: float, north: float, level: int) ->
                 lon_ok |= (x1 >= a + shift) & (x0 <= b + shift)
         return lat_ok & lon_ok
 
-    def inside(la, lo):
+    def inside(la: Floats, lo: Floats) -> Bools:
         ok = np.zeros(la.shape, dtype=bool)
         for a, b in spans:
             ok |= lon_in(lo, a, b)
@@ -120,7 +132,7 @@ def in_bbox(west: float, south: float, east: float, north: float, level: int) ->
     return search(level, near, inside)
 
 
-def in_shape(geom: shapely.Geometry, level: int) -> np.ndarray:
+def in_shape(geom: shapely.Geometry, level: int) -> Ids:
     """``geom``: a (Multi)Polygon in lon/lat within [-180, 180] (see _geojson)."""
     shapely.prepare(geom)
     tripled = shapely.union_all(
@@ -129,7 +141,7 @@ def in_shape(geom: shapely.Geometry, level: int) -> np.ndarray:
     shapely.prepare(tripled)
     _x0g, y0g, _x1g, y1g = shapely.bounds(geom)
 
-    def near(xyz, beta, lon, reach):
+    def near(xyz: Floats, beta: Floats, lon: Floats, reach: float) -> Bools:
         x0, y0, x1, y1 = _reach_box(beta, lon, reach)
         cand = (y1 >= y0g - 0.5) & (y0 <= y1g + 0.5)
         out = np.zeros(lon.shape, dtype=bool)
@@ -138,7 +150,7 @@ def in_shape(geom: shapely.Geometry, level: int) -> np.ndarray:
             out[cand] = shapely.intersects(tripled, boxes)
         return out
 
-    def inside(la, lo):
+    def inside(la: Floats, lo: Floats) -> Bools:
         out = np.zeros(la.shape, dtype=bool)
         cand = (la >= y0g) & (la <= y1g)
         if cand.any():
