@@ -158,7 +158,7 @@ def is_pentagon(zones: Any) -> Bools | np.bool_:
     return vertex
 
 
-def zone_boundary(zone: Any, *, corners_only: bool = False) -> Floats:
+def zone_boundary(zone: Any, *, corners_only: bool = False, face_edges: bool = True) -> Floats:
     """The outline of a zone: (lat, lon) points, counter-clockwise seen from outside the Earth.
 
     By default the true outline. A zone is straight-edged in the plane of each face of the
@@ -175,7 +175,8 @@ def zone_boundary(zone: Any, *, corners_only: bool = False) -> Floats:
     coarse levels.
 
     One zone gives an (m, 2) array. An array of N zones gives (N, M, 2), padded with NaN
-    to the longest outline (M = 6 with ``corners_only``).
+    to the longest outline (M = 6 with ``corners_only``). ``face_edges=False`` is the old
+    spelling of ``corners_only=True``.
 
     >>> zone_boundary(zone_from_text("12b-20-7")).shape
     (6, 2)
@@ -186,7 +187,7 @@ def zone_boundary(zone: Any, *, corners_only: bool = False) -> Floats:
     """
     ids = _ids.as_zones(zone, "zone")
     flat = ids.reshape(-1)
-    if corners_only:
+    if corners_only or not face_edges:
         xyz = _outline.corners(flat)
     else:
         xyz = _outline.padded(*_outline.outlines(flat))
