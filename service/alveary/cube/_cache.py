@@ -3,14 +3,31 @@
 from __future__ import annotations
 
 import threading
-from collections import OrderedDict
 from collections.abc import Hashable
 
+import cachetools
 import numpy as np
 
 from alveary._errors import InvalidInput
 
 __all__ = ["ChunkCache", "IOStats", "io_totals"]
+
+
+def _nbytes(value: np.ndarray) -> int:
+    return int(value.nbytes)
+
+
+class _CountingLRU(cachetools.LRUCache[Hashable, np.ndarray]):
+    """cachetools' LRU, bounded by the arrays' bytes, counting what it evicts."""
+
+    def __init__(self, max_bytes: int) -> None:
+        super().__init__(maxsize=max_bytes, getsizeof=_nbytes)
+        self.evictions = 0
+
+    def popitem(self) -> tuple[Hashable, np.ndarray]:
+        item = super().popitem()
+        self.evictions += 1
+        return item
 
 
 class ChunkCache:
@@ -37,21 +54,32 @@ class ChunkCache:
     True
     >>> cache.hits, cache.misses, cache.bytes
     (1, 1, 80)
+    >>> cache.put("b", np.zeros(5))  # 80 + 40 bytes > 100: the older entry goes
+    >>> len(cache), cache.bytes, cache.evictions
+    (1, 40, 1)
     """
 
     def __init__(self, max_bytes: int) -> None:
         if not isinstance(max_bytes, int | np.integer) or max_bytes < 0:
             raise InvalidInput("max_bytes", max_bytes, "an integer >= 0")
         self.max_bytes = int(max_bytes)
-        self._items: OrderedDict[Hashable, np.ndarray] = OrderedDict()
+        self._items = _CountingLRU(self.max_bytes)
         self._lock = threading.Lock()
         self.hits = 0
         self.misses = 0
-        self.evictions = 0
-        self.bytes = 0
 
     def __len__(self) -> int:
         return len(self._items)
+
+    @property
+    def bytes(self) -> int:
+        """Bytes currently held."""
+        return int(self._items.currsize)
+
+    @property
+    def evictions(self) -> int:
+        """Entries dropped to make room, since creation."""
+        return self._items.evictions
 
     def get(self, key: Hashable) -> np.ndarray | None:
         """The cached chunk, or None (counted as a hit or a miss)."""
@@ -59,33 +87,24 @@ class ChunkCache:
             value = self._items.get(key)
             if value is None:
                 self.misses += 1
-                return None
-            self._items.move_to_end(key)
-            self.hits += 1
+            else:
+                self.hits += 1
             return value
 
     def put(self, key: Hashable, value: np.ndarray) -> None:
         """Store a chunk (made read-only), evicting the least recently used ones."""
-        size = int(value.nbytes)
-        if size > self.max_bytes:
+        if int(value.nbytes) > self.max_bytes:
             return
         value.setflags(write=False)
         with self._lock:
-            old = self._items.pop(key, None)
-            if old is not None:
-                self.bytes -= int(old.nbytes)
             self._items[key] = value
-            self.bytes += size
-            while self.bytes > self.max_bytes and self._items:
-                _, dropped = self._items.popitem(last=False)
-                self.bytes -= int(dropped.nbytes)
-                self.evictions += 1
 
     def clear(self) -> None:
         """Drop every entry (counters are kept)."""
         with self._lock:
+            evicted = self._items.evictions
             self._items.clear()
-            self.bytes = 0
+            self._items.evictions = evicted
 
     def stats(self) -> dict[str, int]:
         """Counters as a dict: hits, misses, evictions, bytes, items, max_bytes."""
