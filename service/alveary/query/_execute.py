@@ -8,53 +8,32 @@ columnar :class:`ZoneResult` or, for area statistics, :class:`StatsResult`.
 from __future__ import annotations
 
 import asyncio
-from typing import Any
 
 import numpy as np
 
 from alveary import grid
 from alveary._errors import DeadlineExceeded
+from alveary.cube import ChunkCache
 from alveary.query._failures import as_domain_error
+from alveary.query._models import RadiusQuery
 from alveary.query._plan import Plan
 from alveary.query._result import StatsResult, ZoneResult
 from alveary.query._stats import zone_statistics
 
-__all__ = ["execute", "zone_areas"]
+__all__ = ["execute"]
 
 
-def zone_areas(zones: np.ndarray, level: int) -> np.ndarray:
-    """Area in m² of each zone (hexagons ``zone_area(level)``, pentagons 5/6 of it).
-
-    >>> a = zone_areas(grid.all_zones(1), 1)
-    >>> round(float(a.sum()) / 1e12, 3)  # the whole Earth, 510.066 million km²
-    510.066
-    """
-    zones = np.asarray(zones, dtype=np.uint64)
-    full = grid.zone_area(level)
-    if zones.size == 0:
-        return np.zeros(0)
-    return np.where(grid.is_pentagon(zones), full * 5.0 / 6.0, full)
-
-
-async def _read_all(plan: Plan, cache: Any) -> dict[str, np.ndarray]:
+async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarray]:
     r = plan.resolved
     steps = r.t1 - r.t0
     n = plan.read_zones.size
     if steps == 0 or n == 0:
         return {v: np.full((steps, n), np.nan) for v in r.variables}
-    times = r.times
-    start, end = times[0], times[-1]
-
-    cube = r.cube
-    # Run the plan made without I/O as it is, unless the cube moved to a new version since.
-    same = hasattr(cube, "execute_async") and str(cube.version) == r.version
 
     async def one(var: str) -> np.ndarray:
+        # The plan runs on the version it was made from (r.cube is that snapshot).
         try:
-            if same and var in plan.reads:
-                out = await cube.execute_async(plan.reads[var], cache)
-            else:
-                out = await cube.read_async(var, plan.read_zones, start, end, cache=cache)
+            out = await r.cube.execute_async(plan.reads[var], cache)
         except Exception as exc:
             raise as_domain_error(exc, f"chunks of {var!r}") from exc
         return np.asarray(out, dtype=np.float64).reshape(steps, n)
@@ -64,7 +43,7 @@ async def _read_all(plan: Plan, cache: Any) -> dict[str, np.ndarray]:
 
 
 async def execute(
-    plan: Plan, cache: Any, *, deadline: float | None = None
+    plan: Plan, cache: ChunkCache | None, *, deadline: float | None = None
 ) -> ZoneResult | StatsResult:
     """Read what a plan names and assemble the result.
 
@@ -85,7 +64,7 @@ async def execute(
         raise DeadlineExceeded(f"the request ran past its deadline of {deadline} s") from None
     info = r.variable_info()
     if plan.stats:
-        areas = zone_areas(plan.read_zones, r.level)
+        areas = grid.zone_areas(plan.read_zones)
         stats = {v: zone_statistics(values[v], areas, plan.stats) for v in r.variables}
         return StatsResult(
             r.cube_id,
@@ -111,7 +90,7 @@ async def execute(
         dict(plan.extra),
         r.query.op,
     )
-    if getattr(r.query, "nearest", False):
+    if isinstance(r.query, RadiusQuery) and r.query.nearest:
         result = _nearest_with_data(result)
     return result
 
