@@ -245,7 +245,8 @@ class CubeVersion:
                     data = np.asarray(await arr.getitem(cr.selection))
                 if cache is not None:
                     cache.put(key, data)
-            raw = data[(cr.in_time, *cr.cells)]
+            where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+            raw = data[where]
             out[cr.out_time, cr.columns] = info.decode(raw)
 
         await asyncio.gather(*(one(cr) for cr in plan.reads))

@@ -62,7 +62,8 @@ def parse_time(value: Any, parameter: str = "datetime") -> np.datetime64:
     if isinstance(value, np.datetime64):
         if np.isnat(value):
             raise InvalidInput(parameter, str(value), "a date-time, not NaT")
-        return value.astype("datetime64[us]")
+        instant: np.datetime64 = value.astype("datetime64[us]")
+        return instant
     if isinstance(value, str):
         value = _from_text(value, parameter)
     if isinstance(value, datetime):

@@ -193,7 +193,7 @@ def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, n
         _check("k", q.k, limits.max_k)
         _check("zones per request", 3 * q.k * (q.k + 1) + 1, limits.max_zones)
         if q.zone is not None:
-            centre = np.uint64(q.zone)
+            centre = np.asarray(q.zone, dtype=np.uint64)
         else:
             centre = grid.point_to_zone(q.lat, q.lon, level)
         ids, steps = grid.zone_disk(centre, q.k, return_steps=True)

@@ -119,7 +119,7 @@ def select_times(spec: TimeSpec, times: np.ndarray) -> tuple[int, int]:
     axis = times.astype("datetime64[us]")
     if spec.kind == "latest":
         return (n - 1, n)
-    if spec.kind == "instant":
+    if spec.kind == "instant" and spec.start is not None:
         i = int(np.searchsorted(axis, spec.start, side="right")) - 1
         if i < 0:
             first = format_time(times[:1])[0]
