@@ -13,24 +13,21 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Generic, TypeVar
 
 import cachetools
 from starlette.types import ASGIApp, Receive, Scope, Send
 
 from alveary.api._etag import matches
+from alveary.cube import ByteLRU
 from alveary.query import Plan
 
 __all__ = [
     "Answer",
     "AnswerCache",
     "AnswerFrontMiddleware",
-    "ByteLRU",
     "PlanCache",
     "request_key",
 ]
-
-V = TypeVar("V")
 
 
 @dataclass(frozen=True)
@@ -63,50 +60,7 @@ def request_key(scope: Scope) -> str | None:
     return f"{scope['path']}?{query}|{accept.decode('latin-1')}"
 
 
-class ByteLRU(Generic[V]):
-    """A least-recently-used map bounded by the bytes of its values (cachetools' LRU).
-
-    A value larger than ``max_entry_bytes`` (default: ``max_bytes``) is not kept.
-    ``get`` counts hits and misses; ``peek`` does not.
-
-    >>> lru = ByteLRU(10, len)
-    >>> lru.put("a", b"12345"); lru.put("b", b"123456")  # the second evicts the first
-    >>> lru.get("a"), lru.get("b"), lru.bytes, (lru.hits, lru.misses)
-    (None, b'123456', 6, (1, 1))
-    """
-
-    def __init__(
-        self, max_bytes: int, sizeof: Callable[[V], int], max_entry_bytes: int | None = None
-    ) -> None:
-        self.max_bytes = int(max_bytes)
-        self.max_entry_bytes = self.max_bytes if max_entry_bytes is None else int(max_entry_bytes)
-        self._sizeof = sizeof
-        self._items: cachetools.LRUCache[str, V] = cachetools.LRUCache(self.max_bytes, sizeof)
-        self.hits = 0
-        self.misses = 0
-
-    @property
-    def bytes(self) -> int:
-        return int(self._items.currsize)
-
-    def peek(self, key: str) -> V | None:
-        """The value (made most recent), not counted."""
-        return self._items.get(key)
-
-    def get(self, key: str) -> V | None:
-        value = self._items.get(key)
-        if value is None:
-            self.misses += 1
-        else:
-            self.hits += 1
-        return value
-
-    def put(self, key: str, value: V) -> None:
-        if self._sizeof(value) <= min(self.max_entry_bytes, self.max_bytes):
-            self._items[key] = value
-
-
-class AnswerCache(ByteLRU[Answer]):
+class AnswerCache(ByteLRU[str, Answer]):
     """LRU of ETag -> :class:`Answer`, at most ``max_bytes`` of bodies, and the raw
     requests (at most ``max_keys``) that led to each ETag.
 
@@ -191,7 +145,7 @@ class AnswerFrontMiddleware:
         await send({"type": "http.response.body", "body": answer.body})
 
 
-class PlanCache(ByteLRU[Plan]):
+class PlanCache(ByteLRU[str, Plan]):
     """LRU of query plans by normalised query (which includes the cube version).
 
     Plans are pure, so a repeated area query (the same polygon every minute) skips the

@@ -7,7 +7,7 @@ a new version. Read plans are pure: :meth:`Cube.plan` names the exact chunks a r
 fetches without touching the store.
 """
 
-from alveary.cube._cache import ChunkCache, IOStats, io_totals
+from alveary.cube._cache import ByteLRU, ChunkCache, IOStats, io_totals
 from alveary.cube._layout import ChunkShape, LevelLayout, default_chunk_shape
 from alveary.cube._meta import FORMAT_VERSION, CubeMeta, VariableInfo, check_cube_id
 from alveary.cube._plan import ChunkRead, ReadPlan, plan_cells
@@ -19,6 +19,7 @@ from alveary.cube._writer import ChunkSink, CubeWriter, create_cube
 __all__ = [
     "FORMAT_VERSION",
     "RFC3339_EXAMPLE",
+    "ByteLRU",
     "ChunkCache",
     "ChunkRead",
     "ChunkShape",

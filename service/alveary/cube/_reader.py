@@ -27,63 +27,19 @@ __all__ = ["Cube", "CubeVersion", "open_cube"]
 _MAX_INFLIGHT = 32
 
 
-async def _open_version(store: CountingStore, url: str, cache: ChunkCache | None) -> CubeVersion:
-    pointer = await read_pointer(store)
-    if pointer is None:
-        raise NotFound("cube", url, f"no published cube at {url} (no {POINTER_KEY})")
-    vid = pointer.get("version")
-    if not isinstance(vid, str):
-        raise CubeFormatError(POINTER_KEY, vid, "a version id")
-    try:
-        group = await zarr.api.asynchronous.open_group(
-            store=store,
-            path=f"{VERSIONS}/{vid}",
-            mode="r",
-            zarr_format=3,
-            use_consolidated=True,
-        )
-    except FileNotFoundError:
-        raise CubeFormatError("version", vid, "a version that exists in the store") from None
-    tarr = await group.getitem("time")
-    if not isinstance(tarr, zarr.AsyncArray):
-        raise CubeFormatError("time", vid, "a time array in the version")
-    seconds = await tarr.getitem(slice(None))
-    times = np.asarray(seconds, dtype=np.int64).astype("datetime64[s]")
-    meta = CubeMeta.from_attrs(dict(group.attrs), times)
-    return CubeVersion(url, vid, meta, group, cache)
+class _Described:
+    """What a cube and a cube version share: metadata read from ``meta``, and reads."""
 
+    def snapshot(self) -> CubeVersion:
+        raise NotImplementedError
 
-class CubeVersion:
-    """One published version of a cube, opened: immutable metadata, plans and reads.
+    @property
+    def meta(self) -> CubeMeta:
+        raise NotImplementedError
 
-    A plan made here is run here: a newer version published meanwhile changes nothing
-    a holder of this object reads (the writer keeps the previous versions for that).
-
-    Attributes
-    ----------
-    url, id, title, version:
-        Where the cube is, its id and title, and this version's id.
-    variables, levels, times, coverage, meta:
-        As in :class:`Cube`.
-    """
-
-    def __init__(
-        self,
-        url: str,
-        version: str,
-        meta: CubeMeta,
-        group: zarr.AsyncGroup,
-        cache: ChunkCache | None,
-    ) -> None:
-        self.url = url
-        self.version = version
-        self.meta = meta
-        self.cache = cache
-        self._group = group
-        self._layouts = {
-            lv: LevelLayout(lv, int(meta.times.size), meta.chunks[lv]) for lv in meta.levels
-        }
-        self._arrays: dict[str, zarr.AsyncArray[Any]] = {}
+    @property
+    def version(self) -> str:
+        raise NotImplementedError
 
     @property
     def id(self) -> str:
@@ -111,9 +67,104 @@ class CubeVersion:
 
     def __repr__(self) -> str:
         return (
-            f"<CubeVersion {self.id!r} version={self.version} levels={list(self.levels)} "
-            f"variables={sorted(self.variables)} times={self.times.size}>"
+            f"<{type(self).__name__} {self.id!r} version={self.version} "
+            f"levels={list(self.levels)} variables={sorted(self.variables)} "
+            f"times={self.times.size}>"
         )
+
+    def read(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        cache: ChunkCache | None = None,
+    ) -> np.ndarray:
+        """Values ``(time, zone)`` as float64; NaN where there is no data."""
+        return sync(self.read_async(variable, zones, start, end, cache))
+
+    async def read_async(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        cache: ChunkCache | None = None,
+    ) -> np.ndarray:
+        """The same as :meth:`read`, awaitable from any event loop."""
+        version = self.snapshot()
+        return await version.execute_async(version.plan(variable, zones, start, end), cache)
+
+
+async def _open_version(store: CountingStore, url: str, cache: ChunkCache | None) -> CubeVersion:
+    pointer = await read_pointer(store)
+    if pointer is None:
+        raise NotFound("cube", url, f"no published cube at {url} (no {POINTER_KEY})")
+    vid = pointer.get("version")
+    if not isinstance(vid, str):
+        raise CubeFormatError(POINTER_KEY, vid, "a version id")
+    try:
+        group = await zarr.api.asynchronous.open_group(
+            store=store,
+            path=f"{VERSIONS}/{vid}",
+            mode="r",
+            zarr_format=3,
+            use_consolidated=True,
+        )
+    except FileNotFoundError:
+        raise CubeFormatError("version", vid, "a version that exists in the store") from None
+    tarr = await group.getitem("time")
+    if not isinstance(tarr, zarr.AsyncArray):
+        raise CubeFormatError("time", vid, "a time array in the version")
+    seconds = await tarr.getitem(slice(None))
+    times = np.asarray(seconds, dtype=np.int64).astype("datetime64[s]")
+    meta = CubeMeta.from_attrs(dict(group.attrs), times)
+    return CubeVersion(url, vid, meta, group, cache)
+
+
+class CubeVersion(_Described):
+    """One published version of a cube, opened: immutable metadata, plans and reads.
+
+    A plan made here is run here: a newer version published meanwhile changes nothing
+    a holder of this object reads (the writer keeps the previous versions for that).
+
+    Attributes
+    ----------
+    url, id, title, version:
+        Where the cube is, its id and title, and this version's id.
+    variables, levels, times, coverage, meta:
+        As in :class:`Cube`.
+    """
+
+    def __init__(
+        self,
+        url: str,
+        version: str,
+        meta: CubeMeta,
+        group: zarr.AsyncGroup,
+        cache: ChunkCache | None,
+    ) -> None:
+        self.url = url
+        self._version = version
+        self._meta = meta
+        self.cache = cache
+        self._group = group
+        self._layouts = {
+            lv: LevelLayout(lv, int(meta.times.size), meta.chunks[lv]) for lv in meta.levels
+        }
+        self._arrays: dict[str, zarr.AsyncArray[Any]] = {}
+
+    def snapshot(self) -> CubeVersion:
+        """This version itself."""
+        return self
+
+    @property
+    def meta(self) -> CubeMeta:
+        return self._meta
+
+    @property
+    def version(self) -> str:
+        return self._version
 
     # -- planning --------------------------------------------------------------------
     def time_indices(self, start: Any = None, end: Any = None) -> slice:
@@ -184,29 +235,6 @@ class CubeVersion:
         )
 
     # -- reading ---------------------------------------------------------------------
-    def read(
-        self,
-        variable: str,
-        zones: Any,
-        start: Any = None,
-        end: Any = None,
-        cache: ChunkCache | None = None,
-    ) -> np.ndarray:
-        """Values ``(time, zone)`` as float64; NaN where there is no data."""
-        plan = self.plan(variable, zones, start, end)
-        return sync(self._execute(plan, cache))
-
-    async def read_async(
-        self,
-        variable: str,
-        zones: Any,
-        start: Any = None,
-        end: Any = None,
-        cache: ChunkCache | None = None,
-    ) -> np.ndarray:
-        """The same as :meth:`read`, awaitable from any event loop."""
-        return await self.execute_async(self.plan(variable, zones, start, end), cache)
-
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
         """Run a plan made by :meth:`plan` (on zarr's I/O loop, awaited from any loop)."""
         loop = _get_loop()
@@ -253,7 +281,7 @@ class CubeVersion:
         return out
 
 
-class Cube:
+class Cube(_Described):
     """A published cube, opened at its current version; :meth:`refresh` moves it on.
 
     Metadata, plans and reads go to the current :class:`CubeVersion`; hold on to
@@ -300,38 +328,8 @@ class Cube:
         return self._v.meta
 
     @property
-    def id(self) -> str:
-        return self._v.id
-
-    @property
-    def title(self) -> str:
-        return self._v.title
-
-    @property
     def version(self) -> str:
         return self._v.version
-
-    @property
-    def variables(self) -> dict[str, VariableInfo]:
-        return self._v.variables
-
-    @property
-    def levels(self) -> tuple[int, ...]:
-        return self._v.levels
-
-    @property
-    def times(self) -> np.ndarray:
-        return self._v.times
-
-    @property
-    def coverage(self) -> tuple[float, float, float, float]:
-        return self._v.coverage
-
-    def __repr__(self) -> str:
-        return (
-            f"<Cube {self.id!r} version={self.version} levels={list(self.levels)} "
-            f"variables={sorted(self.variables)} times={self.times.size}>"
-        )
 
     def refresh(self) -> bool:
         """Re-read the version pointer; True if a new version is now being read."""
@@ -350,28 +348,6 @@ class Cube:
     def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
         """:meth:`CubeVersion.plan` of the current version (no I/O)."""
         return self._v.plan(variable, zones, start, end)
-
-    def read(
-        self,
-        variable: str,
-        zones: Any,
-        start: Any = None,
-        end: Any = None,
-        cache: ChunkCache | None = None,
-    ) -> np.ndarray:
-        """Values ``(time, zone)`` of the current version; NaN where there is no data."""
-        return self._v.read(variable, zones, start, end, cache)
-
-    async def read_async(
-        self,
-        variable: str,
-        zones: Any,
-        start: Any = None,
-        end: Any = None,
-        cache: ChunkCache | None = None,
-    ) -> np.ndarray:
-        """The same as :meth:`read`, awaitable from any event loop."""
-        return await self._v.read_async(variable, zones, start, end, cache)
 
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
         """Run a plan on the current version (plan on :meth:`snapshot` to pin one)."""
