@@ -115,6 +115,12 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.include_router(cubes_router)
     app.include_router(zones_router)
     install_openapi(app)
+    _add_middleware(app, service, settings)
+    return app
+
+
+def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
+    """The ASGI layers around the routes; the last added runs first (metrics outermost)."""
     app.add_middleware(
         AnswerFrontMiddleware,
         cache=service.answers,
@@ -132,7 +138,6 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
         )
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(MetricsMiddleware, metrics=service.metrics)
-    return app
 
 
 def create_app_from_env() -> FastAPI:

@@ -29,6 +29,8 @@ from alveary.query import (
     PointQuery,
     PolygonQuery,
     Query,
+    Resolved,
+    StatsResult,
     ZoneResult,
     execute,
     make_plan,
@@ -120,29 +122,37 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
-        # Area queries enumerate many zones: their plans are kept for repeats.
-        keep = isinstance(query, BboxQuery | PolygonQuery) and self.plans.max_bytes > 0
-        plan: Plan | None = self.plans.get(resolved.key) if keep else None
-        if plan is None:
-            if isinstance(query, PointQuery):
-                plan = make_plan(resolved, self.limits)
-            else:
-                plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
-            if keep:
-                self.plans.put(resolved.key, plan)
+        plan = await self._plan(resolved)
         result = await execute(plan, self.cache, deadline=self.settings.deadline)
-        rows = result.rows if isinstance(result, ZoneResult) else 0
-        if rows <= _INLINE_ROWS:
-            body, media = encode(result, fmt, geometry=geometry)
-        else:
-            body, media = await anyio.to_thread.run_sync(
-                lambda: encode(result, fmt, geometry=geometry)
-            )
+        body, media = await self._encode(result, fmt, geometry)
         if caching:
             operation = f"query_{query.op}"
             answer = Answer(cube_id, resolved.version, etag, body, media, operation)
             self.answers.put_answer(answer, key)
         return Response(body, media_type=media, headers=headers)
+
+    async def _plan(self, resolved: Resolved) -> Plan:
+        """The query's plan: kept for repeats of area queries (they enumerate many zones);
+        made off the event loop unless it is a single point."""
+        keep = isinstance(resolved.query, BboxQuery | PolygonQuery) and self.plans.max_bytes > 0
+        plan = self.plans.get(resolved.key) if keep else None
+        if plan is None:
+            if isinstance(resolved.query, PointQuery):
+                plan = make_plan(resolved, self.limits)
+            else:
+                plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
+            if keep:
+                self.plans.put(resolved.key, plan)
+        return plan
+
+    async def _encode(
+        self, result: ZoneResult | StatsResult, fmt: str, geometry: dict[str, Any] | None
+    ) -> tuple[bytes, str]:
+        """Small answers are encoded on the event loop, large ones in a worker thread."""
+        rows = result.rows if isinstance(result, ZoneResult) else 0
+        if rows <= _INLINE_ROWS:
+            return encode(result, fmt, geometry=geometry)
+        return await anyio.to_thread.run_sync(lambda: encode(result, fmt, geometry=geometry))
 
     def ready(self) -> dict[str, str | None]:
         """Check every store now (blocking: run off the loop); id -> None or error name."""

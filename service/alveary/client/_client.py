@@ -224,8 +224,8 @@ class _Operations(Generic[R]):
             geometry = geometry.__geo_interface__
         params: dict[str, Any] = {**_selection(level, vars, datetime), "f": f}
         params.update(_stats(stats))
-        body = _plain(geometry)
-        return self._send(_Call("POST", f"/cubes/{cube}/polygon", params, body, fmt=f))
+        # (tuples, as in __geo_interface__, are written as JSON arrays)
+        return self._send(_Call("POST", f"/cubes/{cube}/polygon", params, geometry, fmt=f))
 
     def points(
         self,
@@ -269,14 +269,6 @@ def _stats(stats: Names) -> dict[str, str]:
     if not stats:
         return {}
     return {"stats": stats if isinstance(stats, str) else ",".join(stats)}
-
-
-def _plain(obj: Any) -> Any:
-    if isinstance(obj, dict):
-        return {k: _plain(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple):
-        return [_plain(v) for v in obj]
-    return obj
 
 
 def _request_args(call: _Call, headers: dict[str, str] | None) -> dict[str, Any]:

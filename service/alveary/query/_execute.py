@@ -56,39 +56,36 @@ async def execute(
     deadline:
         Seconds the reads may take; past it :class:`DeadlineExceeded` is raised.
     """
-    r = plan.resolved
     try:
         async with asyncio.timeout(deadline):
             values = await _read_all(plan, cache)
     except TimeoutError:
         raise DeadlineExceeded(f"the request ran past its deadline of {deadline} s") from None
-    info = r.variable_info()
     if plan.stats:
-        areas = grid.zone_areas(plan.read_zones)
-        stats = {v: zone_statistics(values[v], areas, plan.stats) for v in r.variables}
-        return StatsResult(
-            r.cube_id,
-            r.version,
-            r.level,
-            info,
-            r.times,
-            int(plan.read_zones.size),
-            float(areas.sum()),
-            plan.stats,
-            stats,
-        )
+        return _statistics(plan, values)
+    return _zone_values(plan, values)
+
+
+def _statistics(plan: Plan, values: dict[str, np.ndarray]) -> StatsResult:
+    """Area-weighted statistics per time step over the plan's zones."""
+    r = plan.resolved
+    areas = grid.zone_areas(plan.read_zones)
+    stats = {v: zone_statistics(values[v], areas, plan.stats) for v in r.variables}
+    zone_count, area = int(plan.read_zones.size), float(areas.sum())
+    info = r.variable_info()
+    return StatsResult(
+        r.cube_id, r.version, r.level, info, r.times, zone_count, area, plan.stats, stats
+    )
+
+
+def _zone_values(plan: Plan, values: dict[str, np.ndarray]) -> ZoneResult:
+    """One answer row per zone (or per point, for multi-point queries)."""
+    r = plan.resolved
     if plan.take is not None:
         values = {v: a[:, plan.take] for v, a in values.items()}
+    info, extra = r.variable_info(), dict(plan.extra)
     result = ZoneResult(
-        r.cube_id,
-        r.version,
-        r.level,
-        info,
-        r.times,
-        plan.zones,
-        values,
-        dict(plan.extra),
-        r.query.op,
+        r.cube_id, r.version, r.level, info, r.times, plan.zones, values, extra, r.query.op
     )
     if isinstance(r.query, RadiusQuery) and r.query.nearest:
         result = _nearest_with_data(result)
