@@ -306,10 +306,12 @@ def test_undecodable_chunk_is_502(s3_server):
         )
 
 
-def test_metrics_count_requests_and_store_reads(analytic_store, s3_server):
-    # A service of its own, so that every counter starts at zero with this test; the
-    # store traffic is judged by the S3 server's log and the stored objects' sizes.
-    url, options = analytic_store
+def test_metrics_count_requests_and_store_reads(s3_server):
+    # A cube and a service of its own, so that every counter starts at zero with this
+    # test and no other process reads the bucket; the store traffic is judged by the S3
+    # server's log and the stored objects' sizes.
+    url, options = f"s3://{s3_server.create_bucket()}/metrics", s3_server.storage_options()
+    build_cube(url, options, levels=(3,))
     cubes = [{"id": "analytic", "url": url, "storage_options": options}]
     point = {"lat": 3, "lon": 4}
     mark = s3_server.mark()
