@@ -10,8 +10,6 @@ from support.fixtures import *  # noqa: F403
 
 _SERVER_FIXTURES = {
     "s3_server",
-    "s3_storage_options",
-    "s3_bucket",
     "analytic_store",
     "service",
     "alveary_service",
