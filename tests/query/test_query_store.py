@@ -19,10 +19,13 @@ from alveary.query import (
     parse_datetime,
     resolve,
 )
+from support.analytic import build_cube
 
 
-def test_plan_reads_nothing_and_execute_reads_the_plan(analytic_store, s3_server):
-    url, options = analytic_store
+def test_plan_reads_nothing_and_execute_reads_the_plan(s3_server):
+    # A bucket of its own: no other process of the session reads it.
+    url, options = f"s3://{s3_server.create_bucket()}/plan", s3_server.storage_options()
+    build_cube(url, options, levels=(3,))
     cat = Catalog([CubeSource("analytic", url, storage_options=options)])
     assert cat.open_all() == {"analytic": None}
     query = DiskQuery(k=3, lat=-20.0, lon=120.0, selection=Selection(time=parse_datetime("../..")))
