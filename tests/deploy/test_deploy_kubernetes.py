@@ -9,7 +9,9 @@ user the image runs as. Sizing checks restate the arithmetic of service/docs/dep
 
 from __future__ import annotations
 
+import os
 import re
+import sys
 import tomllib
 from pathlib import Path
 
@@ -278,7 +280,7 @@ def test_configmaps_hold_no_secrets_and_the_service_accepts_them(monkeypatch, tm
     path.write_text(cubes_text)
     cubes = read_cube_file(path)
     assert [c.id for c in cubes] == ["velmora-irrigation"]
-    for name in list(__import__("os").environ):
+    for name in list(os.environ):
         if name.startswith("ALVEARY_"):
             monkeypatch.delenv(name)
     for name, value in env.items():
@@ -373,5 +375,59 @@ def test_dask_scheduler_workers_and_job_agree():
         m["mountPath"] for c in (wc, jc) for m in c["volumeMounts"] if m["name"] == "sources"
     }
     assert len(source_mounts) == 1 and source_mounts.pop() in script
+
+    # every process that writes chunks finds the same store through its environment
+    def store_env(c):
+        env = {e["name"]: e.get("value") for e in c["env"]}
+        return {k: env.get(k) for k in ("AWS_ENDPOINT_URL", "AWS_DEFAULT_REGION")}
+
+    assert store_env(wc) == store_env(jc) and None not in store_env(jc).values()
     # one image everywhere, so alveary, dask and distributed versions match
     assert {sc["image"], wc["image"], jc["image"]} == {"alveary:0.1.0"}
+
+
+@pytest.mark.slow
+def test_dask_commands_of_the_recipe_start_and_register(tmp_path):
+    # judge: the installed dask/distributed command line accepts the manifests' arguments
+    # (run here on loopback: addresses and directories swapped, every flag kept)
+    from distributed import Client
+
+    from support.process import LoopbackProcess, free_port
+
+    bin_dir = Path(sys.executable).parent
+    (sc,) = _find("Deployment", "alveary-dask-scheduler")["spec"]["template"]["spec"]["containers"]
+    (wc,) = _find("Deployment", "alveary-dask-workers")["spec"]["template"]["spec"]["containers"]
+    port, dash, wdash = free_port(), free_port(), free_port()
+    sargs = list(sc["args"])
+    sargs[sargs.index("--port") + 1] = str(port)
+    sargs[sargs.index("--dashboard-address") + 1] = f"127.0.0.1:{dash}"
+    wargs = [a for a in wc["args"] if not a.startswith(("--local-directory", "--dashboard"))]
+    wargs[2] = f"tcp://127.0.0.1:{port}"
+    wargs += [f"--local-directory={tmp_path / 'scratch'}", f"--dashboard-address=127.0.0.1:{wdash}"]
+    env = {**os.environ, "HOME": str(tmp_path)}
+    scheduler = LoopbackProcess(tmp_path / "scheduler.log")
+    worker = LoopbackProcess(tmp_path / "worker.log")
+    try:
+        scheduler.launch(
+            [str(bin_dir / sargs[0]), *sargs[1:], "--host", "127.0.0.1"],
+            env,
+            f"http://127.0.0.1:{dash}/health",
+            ok_below=201,
+            timeout=60,
+        )
+        worker.launch(
+            [str(bin_dir / wargs[0]), *wargs[1:], "--host", "127.0.0.1"],
+            env,
+            f"http://127.0.0.1:{wdash}/health",
+            ok_below=201,
+            timeout=60,
+        )
+        with Client(f"tcp://127.0.0.1:{port}", timeout="20s") as client:
+            client.wait_for_workers(1, timeout=30)
+            (info,) = client.scheduler_info()["workers"].values()
+            assert info["nthreads"] == 2
+            assert info["memory_limit"] == 3 * 2**30
+            assert client.submit(sum, [1, 2, 3]).result(timeout=30) == 6
+    finally:
+        worker.stop()
+        scheduler.stop()
