@@ -335,3 +335,14 @@ def test_service_stays_inside_the_syscall_and_address_family_filters(analytic_st
     families = set(re.findall(r"socket\((AF_[A-Z0-9]+)", text))
     allowed_families = set(_one(_unit(), "RestrictAddressFamilies").split())
     assert "AF_INET" in families and families <= allowed_families
+
+
+def test_example_cube_list_is_accepted_and_holds_no_keys():
+    from alveary.api._settings import read_cube_file
+
+    path = REPO / "deploy" / "cubes.toml.example"
+    cubes = read_cube_file(path)  # judge: the service's own reader
+    assert [c.id for c in cubes] == ["soil", "demo"]
+    for cube in cubes:
+        options = json.dumps(cube.storage_options or {})
+        assert not re.search(r'"(key|secret|token|password)"', options)
