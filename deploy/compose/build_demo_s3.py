@@ -42,13 +42,14 @@ def build(url: str, days: int) -> int:
     """Publish the demo cube at ``url`` unless a cube is published there already."""
     import fsspec
 
-    from alveary.ingest import ingest
-    from alveary.ingest.demo import DEMO_CUBE_ID, write_demo_sources
-
     ensure_bucket(urlparse(url).netloc)
     if fsspec.filesystem("s3").exists(url.rstrip("/") + "/current.json"):
         print(f"demo-build: a cube is already published at {url}; nothing to do")
         return 0
+
+    from alveary.ingest import ingest
+    from alveary.ingest.demo import DEMO_CUBE_ID, write_demo_sources
+
     with tempfile.TemporaryDirectory(prefix="alveary-demo-") as tmp:
         paths = write_demo_sources(tmp, days=days)
         summary = ingest(
