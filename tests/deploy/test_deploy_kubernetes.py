@@ -147,7 +147,7 @@ def test_service_probes_and_shutdown():
     port_names = {p["name"]: p["containerPort"] for p in c["ports"]}
     for probe in ("livenessProbe", "readinessProbe", "startupProbe"):
         assert c[probe]["httpGet"]["port"] in port_names
-        # the goal: /readyz answers within 2 s; the probe waits a little longer
+        # the service's goal: /readyz answers within 2 s; the probe waits a little longer
         assert 2 <= c[probe]["timeoutSeconds"] <= 5
     env = _find("ConfigMap", "alveary-env")["data"]
     assert port_names["http"] == int(env["ALVEARY_PORT"])
