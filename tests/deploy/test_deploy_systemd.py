@@ -270,6 +270,20 @@ def test_service_answers_without_wx_memory_capabilities_or_a_writable_root(
     prefix = _sandbox_prefix(writable)
     if prefix is None:
         pytest.skip("needs root and unshare/setpriv to build the read-only sandbox")
+    # the sandbox bites: the root filesystem refuses writes (EROFS), the tmpfs takes them
+    probe = (
+        "import errno, sys\n"
+        "try:\n    open(sys.argv[1], 'w')\n"
+        "except OSError as exc:\n    print(errno.errorcode[exc.errno])\n"
+        "open(sys.argv[2] + '/ok', 'w').write('ok')\n"
+    )
+    done = subprocess.run(
+        [*prefix, sys.executable, "-c", probe, str(tmp_path / "x"), str(writable)],
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
+    assert done.returncode == 0 and done.stdout.strip() == "EROFS", done.stdout + done.stderr
     launch = tmp_path / "launch.py"
     launch.write_text(_LAUNCH)
     proc, base = _serve(
