@@ -341,6 +341,13 @@ def test_service_stays_inside_the_syscall_and_address_family_filters(analytic_st
     try:
         _exercise(base)
     finally:
+        # strace detaches on SIGTERM and would leave the service running: stop it first
+        import psutil
+
+        children = psutil.Process(proc.pid).children(recursive=True)
+        for child in children:
+            child.terminate()
+        psutil.wait_procs(children, timeout=15)
         proc.stop()
     text = trace.read_text()
     used = set(re.findall(r"^\d+\s+([a-z0-9_]+)\(", text, re.M))
