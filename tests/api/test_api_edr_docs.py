@@ -174,6 +174,11 @@ def test_data_queries_and_the_vendor_level(cube):
         assert variables["alveary:levels"] == [5, 7]
         assert variables["alveary:default_level"] == 7
         assert variables["crs_details"][0]["crs"] == "CRS84"
+    for name in ("area", "cube"):
+        variables = queries[name]["link"]["variables"]
+        assert variables["alveary:stats"] == ["mean", "min", "max", "sum", "count", "std"]
+        assert "stats" in queries[name]["link"]["href"]
+    assert "alveary:stats" not in queries["position"]["link"]["variables"]
     assert queries["radius"]["link"]["variables"]["within_units"] == ["m", "km", "mi"]
     assert "within-units" in queries["radius"]["link"]["href"]
     assert queries["cube"]["link"]["variables"]["height_units"] == []  # no z

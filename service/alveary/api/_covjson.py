@@ -180,9 +180,14 @@ def covjson_parameter(info: Any) -> dict[str, Any]:
 
 
 def _time_axis(times: np.ndarray, axis: np.ndarray | None) -> dict[str, Any]:
-    lo, hi = step_bounds(times, axis)
-    bounds = np.column_stack([lo, hi]).reshape(-1)
-    return {"values": format_time(times), "bounds": format_time(bounds)}
+    _, ends = step_bounds(times, axis)
+    starts = format_time(times)
+    if np.array_equal(ends[:-1], times[1:]):  # consecutive steps: each ends where the next starts
+        finish = starts[1:] + format_time(ends[-1:])
+    else:
+        finish = format_time(ends)
+    bounds = [t for pair in zip(starts, finish, strict=True) for t in pair]
+    return {"values": starts, "bounds": bounds}
 
 
 def _range(values: np.ndarray, axes: list[str], integer: bool = False) -> dict[str, Any]:

@@ -7,7 +7,10 @@ the ``variables`` of a ``data_queries`` link:
 
 - ``alveary:levels`` (the grid levels of the cube) and ``alveary:default_level`` (its
   finest) describe the vendor query parameter ``level``, which picks the grid level of an
-  answer.
+  answer;
+- ``alveary:stats`` (area and cube queries) lists the statistics the vendor parameter
+  ``stats`` may ask for, which turns an answer into statistics per time step over the
+  area.
 
 One collection per cube, ``id`` the cube's id. Coordinates are CRS84 everywhere. The
 temporal extent runs from the first step to the end of the last step's interval (see
@@ -24,7 +27,7 @@ import numpy as np
 
 from alveary._errors import InvalidInput
 from alveary.api._covjson import COVJSON, COVJSON_LEGACY, observed_property, unit_object
-from alveary.query import format_time
+from alveary.query import STATISTICS, format_time
 from alveary.query._edr_params import CRS84, WITHIN_UNITS
 from alveary.query._steps import step_bounds
 
@@ -116,8 +119,8 @@ _JSON = "application/json"
 _QUERY_PARAMETERS = {
     "position": "coords,datetime,parameter-name,crs,f,level",
     "radius": "coords,within,within-units,datetime,parameter-name,crs,f,level",
-    "area": "coords,datetime,parameter-name,crs,f,level",
-    "cube": "bbox,datetime,parameter-name,crs,f,level",
+    "area": "coords,datetime,parameter-name,crs,f,level,stats",
+    "cube": "bbox,datetime,parameter-name,crs,f,level,stats",
 }
 _QUERY_TEXT = {
     "position": (
@@ -288,6 +291,8 @@ def _query_link(base: str, query: str, levels: list[int]) -> dict[str, Any]:
         "alveary:levels": levels,
         "alveary:default_level": max(levels) if levels else None,
     }
+    if query in ("area", "cube"):
+        variables["alveary:stats"] = list(STATISTICS)
     if query == "radius":
         variables["within_units"] = list(WITHIN_UNITS)
     if query == "cube":

@@ -17,6 +17,7 @@ reader). Strings the small grammar does not cover (offsets such as ``K @ 273.15`
 from __future__ import annotations
 
 import re
+from functools import lru_cache
 
 __all__ = ["unit_symbol"]
 
@@ -163,6 +164,7 @@ def _join(factors: list[tuple[str, int]]) -> str:
     return "·".join(name + _superscript(exp) for name, exp in factors)
 
 
+@lru_cache(maxsize=1024)
 def unit_symbol(units: str | None) -> str:
     """A display symbol for a UDUNITS-2 / CF units string.
 

@@ -61,15 +61,18 @@ def step_bounds(times: np.ndarray, axis: np.ndarray | None = None) -> tuple[np.n
     """
     times = np.asarray(times).astype("datetime64[s]")
     full = times if axis is None else np.asarray(axis).astype("datetime64[s]")
-    if full.size == 0:
+    if times.size == 0:
         return times.copy(), times.copy()
-    ends = np.empty_like(full)
-    ends[:-1] = full[1:]
-    ends[-1] = full[-1] if full.size == 1 else _upper_of_last(full)
-    where = np.minimum(np.searchsorted(full, times), full.size - 1)
-    if not np.array_equal(full[where], times):
+    where = np.searchsorted(full, times)
+    if np.any(where >= full.size) or not np.array_equal(full[where], times):
         raise ValueError("times must be steps of the axis")
-    return times.copy(), ends[where]
+    after = where + 1
+    inside = after < full.size
+    ends = np.empty_like(times)
+    ends[inside] = full[after[inside]]
+    if not inside.all():  # the axis's last step is among them: it ends as described above
+        ends[~inside] = full[-1] if full.size == 1 else _upper_of_last(full)
+    return times.copy(), ends
 
 
 def select_steps(spec: TimeSpec, times: np.ndarray) -> tuple[int, int]:
