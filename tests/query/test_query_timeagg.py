@@ -31,15 +31,17 @@ from alveary.query._timeagg import (
 PANDAS_PERIOD = {"P1D": "D", "P7D": "W-SUN", "P1M": "M", "P3M": "Q-DEC", "P1Y": "Y"}
 
 
-def six_hourly_series(seed: int = 3) -> tuple[np.ndarray, np.ndarray]:
+def six_hourly_series(seed: int = 3, gaps: bool = True) -> tuple[np.ndarray, np.ndarray]:
     """Steps every 6 h from 2019-12-20 to 2021-03-10 (leap 2020, partial periods at both
-    ends), with the steps of 2020-05-13..2020-06-21 missing, scattered NaN, and one zone
-    without any data in July 2020."""
+    ends), with the steps of 2020-05-13..2020-06-21 missing, and (if ``gaps``) scattered
+    NaN and one zone without any data in July 2020."""
     times = np.arange("2019-12-20T00", "2021-03-10T00", 6, dtype="datetime64[h]")
     gap = (times >= np.datetime64("2020-05-13")) & (times < np.datetime64("2020-06-22"))
     times = times[~gap].astype("datetime64[s]")
     rng = np.random.default_rng(seed)
     values = rng.normal(15.0, 6.0, size=(times.size, 4))
+    if not gaps:
+        return values, times
     values[rng.random(values.shape) < 0.2] = np.nan
     july = (times >= np.datetime64("2020-07-01")) & (times < np.datetime64("2020-08-01"))
     values[july, 2] = np.nan
@@ -56,10 +58,11 @@ def pandas_aggregate(grouped, agg: str) -> pd.DataFrame:
     return getattr(grouped, agg)()
 
 
+@pytest.mark.parametrize("gaps", [True, False], ids=["gaps", "dense"])
 @pytest.mark.parametrize("every", EVERY)
 @pytest.mark.parametrize("agg", AGGREGATES)
-def test_periods_match_pandas_groupby(every, agg):
-    values, times = six_hourly_series()
+def test_periods_match_pandas_groupby(every, agg, gaps):
+    values, times = six_hourly_series(gaps=gaps)
     df = frame(values, times)
     periods = df.index.to_period(PANDAS_PERIOD[every])
     grouped = df.groupby(periods)

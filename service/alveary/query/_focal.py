@@ -212,13 +212,14 @@ def _time_blocks(ntime: int, cells: int) -> Iterator[slice]:
 
 
 def _gather(values: FloatArray, source: IntArray) -> FloatArray:
-    """``(time, H, W)`` window of values; NaN where the zone is not needed."""
-    missing = source < 0
-    out = np.take(values, np.where(missing, 0, source).ravel(), axis=1)
-    out = out.reshape(values.shape[0], *source.shape)
-    if missing.any():
-        out[:, missing] = np.nan
-    return out
+    """``(time, H, W)`` window of values.
+
+    A cell whose zone is not needed lies in no flat target's disk, so what it holds never
+    reaches a result: it takes the first needed zone's value (keeping NaN out of windows
+    whose data have none).
+    """
+    out = np.take(values, np.maximum(source, 0).ravel(), axis=1)
+    return out.reshape(values.shape[0], *source.shape)
 
 
 def _segment_blocks(ex: Any, ntime: int) -> Iterator[tuple[slice, slice, IntArray]]:
@@ -258,11 +259,18 @@ def _prefix(x: FloatArray) -> FloatArray:
     return c
 
 
+def _disk_size(s: int) -> int:
+    return 3 * s * (s + 1) + 1
+
+
 def _sums_counts(v: FloatArray, k: int, s: int) -> tuple[FloatArray, FloatArray]:
+    """Sums of the values present and their counts over every interior cell's s-disk."""
     h, w = v.shape[1] - 2 * k, v.shape[2] - 2 * k
-    data = ~np.isnan(v)
-    z = _prefix(np.where(data, v, 0.0))
-    d = _prefix(data.astype(np.float64))
+    missing = np.isnan(v)
+    if not missing.any():  # dense data: every disk is full
+        return _disk_sums(_prefix(v), k, s, h, w), np.full((v.shape[0], h, w), _disk_size(s), float)
+    z = _prefix(np.where(missing, 0.0, v))
+    d = _prefix((~missing).astype(np.float64))
     return _disk_sums(z, k, s, h, w), _disk_sums(d, k, s, h, w)
 
 
@@ -288,12 +296,14 @@ def _tile_extreme(v: FloatArray, k: int, op: Callable[..., FloatArray]) -> Float
 def _tile_std(v: FloatArray, k: int, da: IntArray, db: IntArray) -> FloatArray:
     h, w = v.shape[1] - 2 * k, v.shape[2] - 2 * k
     total, count = _sums_counts(v, k, k)
+    dense = not np.isnan(v).any()
     with np.errstate(invalid="ignore", divide="ignore"):
         mean = total / count
     acc = np.zeros_like(mean)
     for a, b in zip(da.tolist(), db.tolist(), strict=True):
         dev = v[:, k + a : k + a + h, k + b : k + b + w] - mean
-        acc += np.where(np.isnan(dev), 0.0, dev * dev)
+        dev *= dev
+        acc += dev if dense else np.where(np.isnan(dev), 0.0, dev)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.asarray(np.sqrt(acc / count))
 
@@ -317,8 +327,10 @@ def _tile_kernel(
     v: FloatArray, k: int, weights: FloatArray, steps: IntArray, da: IntArray, db: IntArray
 ) -> FloatArray:
     h, w = v.shape[1] - 2 * k, v.shape[2] - 2 * k
-    data = ~np.isnan(v)
-    z = np.where(data, v, 0.0)
+    missing = np.isnan(v)
+    dense = not missing.any()
+    z = v if dense else np.where(missing, 0.0, v)
+    data = ~missing
     num = np.zeros((v.shape[0], h, w))
     den = np.zeros_like(num)
     for ring in range(k + 1):
@@ -328,9 +340,13 @@ def _tile_kernel(
         for a, b in zip(da[steps == ring].tolist(), db[steps == ring].tolist(), strict=True):
             rows, cols = slice(k + a, k + a + h), slice(k + b, k + b + w)
             ring_z += z[:, rows, cols]
-            ring_d += data[:, rows, cols]
+            if not dense:
+                ring_d += data[:, rows, cols]
         num += weights[ring] * ring_z
-        den += weights[ring] * ring_d
+        if dense:
+            den += weights[ring] * max(6 * ring, 1)  # zones on the ring
+        else:
+            den += weights[ring] * ring_d
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / den, np.nan)
 
@@ -376,19 +392,22 @@ def _frames(c: FloatArray) -> tuple[FloatArray, FloatArray, npt.NDArray[np.bool_
     return east, north, pole
 
 
+def _dot(a: FloatArray, b: FloatArray) -> FloatArray:
+    return np.asarray(a[0] * b[0] + a[1] * b[1] + a[2] * b[2])
+
+
 def _plane_xy(
     c: FloatArray, east: FloatArray, north: FloatArray, p: FloatArray
 ) -> tuple[FloatArray, FloatArray]:
     """Azimuthal equidistant coordinates (metres, authalic sphere) of unit vectors ``p`` in
-    the plane of the centre ``c``: distance R * arc, along the azimuth of ``p``."""
-    cos = np.sum(c * p, axis=0)
-    sin = np.linalg.norm(p - cos * c, axis=0)
+    the plane of the centre ``c``: distance R * arc, along the azimuth of ``p``. A unit
+    ``p`` is ``cos(arc) c + e east + n north`` with ``hypot(e, n) = sin(arc)``."""
+    e, n = _dot(p, east), _dot(p, north)
+    sin = np.hypot(e, n)
     with np.errstate(invalid="ignore", divide="ignore"):
-        scale = np.where(sin > 0, R_AUTHALIC * np.arctan2(sin, cos) / sin, R_AUTHALIC)
-    return scale * np.sum(p * east, axis=0), scale * np.sum(p * north, axis=0)
-
-
-_SUMS = 9  # n, x, y, xx, xy, yy, v, xv, yv
+        scale = R_AUTHALIC * np.arctan2(sin, _dot(p, c)) / sin
+    scale[sin == 0] = R_AUTHALIC
+    return scale * e, scale * n
 
 
 def _plane_fit(s: list[FloatArray]) -> tuple[FloatArray, FloatArray]:
@@ -405,15 +424,22 @@ def _plane_fit(s: list[FloatArray]) -> tuple[FloatArray, FloatArray]:
     return gx, gy
 
 
-def _add_terms(s: list[FloatArray], x: Any, y: Any, v: FloatArray) -> None:
-    """Add one member's terms (NaN values left out) to the sums, in place."""
+def _add_terms(s: list[FloatArray], x: FloatArray, y: FloatArray, v: FloatArray) -> None:
+    """Add one member's terms (NaN values left out) to the sums, in place. Without NaN the
+    geometric sums (the first six) do not depend on time and are kept per cell."""
     d = ~np.isnan(v)
-    z = np.where(d, v, 0.0)
-    df = d.astype(np.float64)
-    for acc, term in zip(
-        s, (df, df * x, df * y, df * x * x, df * x * y, df * y * y, z, z * x, z * y), strict=True
-    ):
-        acc += term
+    if d.all():
+        geometry: tuple[Any, ...] = (1.0, x, y, x * x, x * y, y * y)
+        z = v
+    else:
+        df = d.astype(np.float64)
+        geometry = (df, df * x, df * y, df * x * x, df * x * y, df * y * y)
+        z = np.where(d, v, 0.0)
+    for i, term in enumerate((*geometry, z, z * x, z * y)):
+        if s[i].shape != np.shape(term) and np.ndim(term) > np.ndim(s[i]):
+            s[i] = s[i] + term  # geometric sums gain the time axis once data go missing
+        else:
+            s[i] += term
 
 
 def _reference(v: FloatArray) -> FloatArray:
@@ -434,12 +460,12 @@ def _tile_gradient(
     c = geometry[:, k : k + h, k : k + w]
     east, north, pole = _frames(c)
     vr = v - _reference(v)
-    s = [np.zeros((v.shape[0], h, w)) for _ in range(_SUMS)]
+    s = [np.zeros((h, w)) for _ in range(6)] + [np.zeros((v.shape[0], h, w)) for _ in range(3)]
     for a, b in zip(da.tolist(), db.tolist(), strict=True):
         rows, cols = slice(k + a, k + a + h), slice(k + b, k + b + w)
         x, y = _plane_xy(c, east, north, geometry[:, rows, cols])
         _add_terms(s, x, y, vr[:, rows, cols])
-    gx, gy = _plane_fit(s)
+    gx, gy = _plane_fit([np.broadcast_to(x, s[-1].shape) for x in s])
     return gx, gy, np.broadcast_to(pole, gx.shape)
 
 
@@ -598,9 +624,7 @@ def focal_gradient(values: Any, windows: DiskWindows) -> tuple[FloatArray, Float
     uv = windows.unit_vectors.T  # (3, needed)
 
     def tile_fn(v: FloatArray, tile: Any) -> tuple[FloatArray, ...]:
-        missing = tile.source < 0
-        geometry = uv[:, np.where(missing, 0, tile.source)]
-        geometry[:, missing] = np.nan
+        geometry = uv[:, np.maximum(tile.source, 0)]  # unneeded cells: see _gather
         gx, gy, pole = _tile_gradient(v, k, geometry, da, db)
         return gx, gy, pole.astype(np.float64)
 

@@ -169,27 +169,48 @@ def _segments(codes: IntArray) -> IntArray:
     return np.flatnonzero(np.concatenate([[True], codes[1:] != codes[:-1]])).astype(np.int64)
 
 
+def _per_run(op: np.ufunc, x: npt.NDArray[Any], starts: IntArray) -> npt.NDArray[Any]:
+    """``op`` over each run of rows beginning at ``starts``. A loop over runs: numpy's
+    ``reduceat`` along the first axis of a wide array is several times slower, and
+    ``add.reduce`` sums pairwise."""
+    ends = np.append(starts[1:], x.shape[0])
+    out = np.empty((starts.size, *x.shape[1:]), dtype=x.dtype)
+    for row, (a, b) in enumerate(zip(starts.tolist(), ends.tolist(), strict=True)):
+        op.reduce(x[a:b], axis=0, out=out[row])
+    return out
+
+
 def _reduce(values: FloatArray, starts: IntArray, agg: str) -> FloatArray:
     """An aggregate of each run of rows beginning at ``starts``, NaN left out."""
     if starts.size == 0:
         return np.zeros((0, values.shape[1]))
     if agg in ("min", "max"):
-        op = np.fmin if agg == "min" else np.fmax
-        return np.asarray(op.reduceat(values, starts, axis=0))
-    data = ~np.isnan(values)
+        return _per_run(np.fmin if agg == "min" else np.fmax, values, starts)
+    missing = np.isnan(values)
+    if not missing.any():  # dense: every step has data
+        if agg == "first":
+            return values[starts]
+        if agg == "last":
+            ends: IntArray = np.append(starts[1:], values.shape[0]) - 1
+            return values[ends]
+        steps = np.diff(np.append(starts, values.shape[0])).astype(np.float64)[:, None]
+        if agg == "count":
+            return np.broadcast_to(steps, (starts.size, values.shape[1])).copy()
+        total = _per_run(np.add, values, starts)
+        return total if agg == "sum" else total / steps
     if agg in ("first", "last"):
         rows = np.arange(values.shape[0], dtype=np.int64)[:, None]
         if agg == "first":
-            pick = np.minimum.reduceat(np.where(data, rows, values.shape[0]), starts, axis=0)
+            pick = _per_run(np.minimum, np.where(missing, values.shape[0], rows), starts)
         else:
-            pick = np.maximum.reduceat(np.where(data, rows, -1), starts, axis=0)
+            pick = _per_run(np.maximum, np.where(missing, -1, rows), starts)
         found = (pick >= 0) & (pick < values.shape[0])
         got = np.take_along_axis(values, np.clip(pick, 0, values.shape[0] - 1), axis=0)
         return np.where(found, got, np.nan)
-    count = np.add.reduceat(data.astype(np.float64), starts, axis=0)
+    count = _per_run(np.add, (~missing).astype(np.float64), starts)
     if agg == "count":
         return count
-    total = np.add.reduceat(np.where(data, values, 0.0), starts, axis=0)
+    total = _per_run(np.add, np.where(missing, 0.0, values), starts)
     with np.errstate(invalid="ignore", divide="ignore"):
         if agg == "sum":
             return np.where(count > 0, total, np.nan)
