@@ -58,8 +58,9 @@ IntArray = npt.NDArray[np.int64]
 FOCAL_STATISTICS = ("count", "gradient", "max", "mean", "min", "std", "sum")
 #: Default upper bound of ``focal_k`` (a deployment may configure another).
 MAX_FOCAL_K = 16
-#: Values per working block (a window times its time steps): 2**21 float64 = 16 MiB.
-BLOCK_ELEMENTS = 1 << 21
+#: Values per working block (a window times its time steps): 2**18 float64 = 2 MiB, which
+#: measured faster than larger blocks (the arrays stay nearer the processor's caches).
+BLOCK_ELEMENTS = 1 << 18
 
 
 class DiskWindows(Protocol):
@@ -245,11 +246,15 @@ def _row_runs(k: int, s: int) -> Iterator[tuple[int, int, int]]:
 def _disk_sums(c: FloatArray, k: int, s: int, h: int, w: int) -> FloatArray:
     """Sums over the s-disk (s <= k) of every interior cell, from row prefix sums ``c``
     (``c[..., y]`` = sum of the first y cells of the row)."""
-    acc = np.zeros((c.shape[0], h, w))
+    acc: FloatArray | None = None
     for da, lo, hi in _row_runs(k, s):
         rows = slice(k + da, k + da + h)
-        acc += c[:, rows, k + hi + 1 : k + hi + 1 + w]
-        acc -= c[:, rows, k + lo : k + lo + w]
+        run = c[:, rows, k + hi + 1 : k + hi + 1 + w] - c[:, rows, k + lo : k + lo + w]
+        if acc is None:
+            acc = run
+        else:
+            acc += run
+    assert acc is not None
     return acc
 
 
@@ -263,12 +268,13 @@ def _disk_size(s: int) -> int:
     return 3 * s * (s + 1) + 1
 
 
-def _sums_counts(v: FloatArray, k: int, s: int) -> tuple[FloatArray, FloatArray]:
-    """Sums of the values present and their counts over every interior cell's s-disk."""
+def _sums_counts(v: FloatArray, k: int, s: int) -> tuple[FloatArray, FloatArray | float]:
+    """Sums of the values present and their counts over every interior cell's s-disk; the
+    count is one number when no value is missing (every disk is full)."""
     h, w = v.shape[1] - 2 * k, v.shape[2] - 2 * k
     missing = np.isnan(v)
-    if not missing.any():  # dense data: every disk is full
-        return _disk_sums(_prefix(v), k, s, h, w), np.full((v.shape[0], h, w), _disk_size(s), float)
+    if not missing.any():
+        return _disk_sums(_prefix(v), k, s, h, w), float(_disk_size(s))
     z = _prefix(np.where(missing, 0.0, v))
     d = _prefix((~missing).astype(np.float64))
     return _disk_sums(z, k, s, h, w), _disk_sums(d, k, s, h, w)
@@ -316,11 +322,12 @@ def _tile_statistic(v: FloatArray, k: int, statistic: str, windows: DiskWindows)
         return _tile_std(v, k, da, db)
     total, count = _sums_counts(v, k, k)
     if statistic == "count":
-        return count
+        return np.broadcast_to(count, total.shape)
     with np.errstate(invalid="ignore", divide="ignore"):
         if statistic == "mean":
-            return np.asarray(total / count)
-        return np.where(count > 0, total, np.nan)  # sum
+            total /= count
+            return total
+        return total if np.isscalar(count) else np.where(count > 0, total, np.nan)  # sum
 
 
 def _tile_kernel(
