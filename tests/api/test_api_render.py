@@ -32,7 +32,17 @@ from alveary.api._colours import (
 from alveary.api._legend import legend_png, legend_svg, legend_ticks
 from alveary.api._mvt import MVT_EXTENT, zone_tile_mvt
 from alveary.api._render import encode_png, render_tile, transparent_png
-from alveary.query._tiles import default_level, tile_bounds, tile_zone_candidates, tile_zones
+from alveary.api._tileset import map_tiles_document, vector_tiles_document
+from alveary.query._tiles import (
+    EDGE_PIXELS,
+    TARGET_PIXELS,
+    default_level,
+    pixel_size,
+    tile_bounds,
+    tile_zone_candidates,
+    tile_zones,
+    zone_pixels,
+)
 
 HALF = math.pi * 6378137.0  # EPSG:3857's square spans ±πR
 TO_LONLAT = pyproj.Transformer.from_crs("EPSG:3857", "EPSG:4326", always_xy=True)
@@ -365,3 +375,46 @@ def test_empty_vector_tile_decodes():
     data = zone_tile_mvt(4, 3, 3, np.zeros(0, np.uint64))
     decoded = mapbox_vector_tile.decode(data)
     assert decoded.get("zones", {"features": []})["features"] == []
+
+
+# ---------------------------------------------------------------- tile set descriptions
+
+
+def test_map_tiles_document_templates_and_zoom_range():
+    doc = map_tiles_document(
+        "demo cube",
+        title="Demo",
+        levels=[3, 7],
+        bounds=(-36.2, 30.5, -36.0, 30.6),
+        base="http://127.0.0.1:8000",
+        query={"vars": "temp", "colormap": "honey", "range": ""},
+    )
+    root = "http://127.0.0.1:8000/collections/demo%20cube/map/tiles/WebMercatorQuad"
+    assert doc["tiles"] == [f"{root}/{{z}}/{{y}}/{{x}}?vars=temp&colormap=honey"]
+    (tileset,) = doc["tilesets"]
+    item = next(link for link in tileset["links"] if link["rel"] == "item")
+    assert item["templated"] and item["type"] == "image/png"
+    assert item["href"] == f"{root}/{{tileMatrix}}/{{tileRow}}/{{tileCol}}?vars=temp&colormap=honey"
+    assert tileset["tileMatrixSetURI"].endswith("/WebMercatorQuad")
+    assert doc["tilejson"] == "3.0.0" and doc["bounds"] == [-36.2, 30.5, -36.0, 30.6]
+    assert set(doc["colormaps"]) == set(SCALES) and doc["defaultColormap"] == DEFAULT_SCALE
+    # past maxzoom the finest zones are over 128 pixels wide at the equator, before it not
+    z = doc["maxzoom"]
+    assert zone_pixels(z, 2 ** (z - 1), 7) >= 128 > zone_pixels(z - 1, 2 ** (z - 2), 7)
+    # the page's level rule carries the tile module's constants
+    levels = doc["levels"]
+    assert levels["targetPixels"] == TARGET_PIXELS and levels["edgePixels"] == EDGE_PIXELS
+    assert levels["levels"] == [3, 7]
+    assert levels["zoneWidths"]["7"] == pytest.approx(zone_pixels(0, 0, 7) * pixel_size(0, 0))
+
+
+def test_vector_tiles_document_lists_the_layer_fields():
+    doc = vector_tiles_document(
+        "demo", title="Demo", levels=[5, 9], variables={"temp": "K", "ndvi": ""}
+    )
+    assert doc["tilesets"][0]["dataType"] == "vector"
+    assert doc["tiles"][0] == "/collections/demo/tiles/WebMercatorQuad/{z}/{y}/{x}"
+    (layer,) = doc["vector_layers"]
+    assert layer["id"] == "zones"
+    assert set(layer["fields"]) == {"zone", "zone_text", "temp", "ndvi"}
+    assert doc["levels"]["targetPixels"] > TARGET_PIXELS

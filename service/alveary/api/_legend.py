@@ -63,17 +63,35 @@ def _title(name: str, units: str) -> str:
 
 
 def _labels(vmin: float, vmax: float, width: int) -> list[tuple[float, str]]:
-    """(x position, text) for the range ends and the round values not crowding them."""
+    """(x position, text) for the range ends and the round values that fit between them.
+
+    Labels are about 7 pixels a character at 12 px; a round value is kept only where it
+    clears its neighbours by 8 pixels.
+    """
     span = vmax - vmin
     bar = width - 2 * _MARGIN
-    out = [
+    ends = [
         (float(_MARGIN), format_value(vmin, span)),
         (float(width - _MARGIN), format_value(vmax, span)),
     ]
+
+    def extent(x: float, text: str) -> tuple[float, float]:
+        half = 3.5 * len(text)
+        if x <= _MARGIN:  # the end labels sit inside the picture
+            return x, x + 2 * half
+        if x >= width - _MARGIN:
+            return x - 2 * half, x
+        return x - half, x + half
+
+    taken = [extent(x, t) for x, t in ends]
+    out = list(ends)
     for t in legend_ticks(vmin, vmax):
         x = _MARGIN + (t - vmin) / span * bar
-        if min(x - _MARGIN, width - _MARGIN - x) >= 0.12 * bar:
-            out.append((x, format_value(t, span)))
+        text = format_value(t, span)
+        lo, hi = extent(x, text)
+        if all(hi + 8 <= a or lo - 8 >= b for a, b in taken):
+            taken.append((lo, hi))
+            out.append((x, text))
     return out
 
 
