@@ -21,7 +21,6 @@ from typing import Any
 import mapbox_vector_tile  # type: ignore[import-untyped]
 import numpy as np
 import shapely  # type: ignore[import-untyped]
-import shapely.affinity  # type: ignore[import-untyped]
 
 from alveary import grid
 from alveary._errors import InvalidInput
@@ -32,8 +31,8 @@ MVT_MEDIA_TYPE = "application/vnd.mapbox-vector-tile"
 #: Tile coordinates run from 0 to this along each side.
 MVT_EXTENT = 4096
 _BUFFER = 64
-_POLE_LAT = 89.9
-_MAX_STEP = 0.25  # degrees of arc between points along a zone edge  # Web Mercator is infinite at the pole; anything past the tile is clipped
+_POLE_LAT = 89.9  # Web Mercator is infinite at the pole; anything past the tile is clipped
+_MAX_STEP = 0.5  # degrees of arc between points along a zone edge
 
 
 def _mercator(
@@ -81,10 +80,18 @@ def _rings(zones: np.ndarray, centre_lon: float) -> list[np.ndarray]:
 
     A ring that winds around a pole is closed over it.
     """
-    outlines = grid.zone_boundary(zones, face_edges=True)
+    outlines = grid.zone_boundary(zones, face_edges=True).reshape(len(zones), -1, 2)
+    # edges longer than the step (by a generous flat estimate) get points between corners
+    dlat = np.roll(outlines[:, :, 0], -1, axis=1) - outlines[:, :, 0]
+    dlon = (np.roll(outlines[:, :, 1], -1, axis=1) - outlines[:, :, 1] + 180.0) % 360.0 - 180.0
+    arc = np.hypot(dlat, dlon * np.cos(np.radians(outlines[:, :, 0])))
+    long_edges = (np.nan_to_num(arc) > 0.7 * _MAX_STEP).any(axis=1)
+    long_edges |= np.nanmax(np.abs(outlines[:, :, 0]), axis=1) > 80.0
     rings = []
-    for outline in outlines.reshape(len(zones), -1, 2):
-        ring = _densify(outline[~np.isnan(outline[:, 0])])
+    for outline, dense in zip(outlines, long_edges, strict=True):
+        ring = outline[~np.isnan(outline[:, 0])]
+        if dense:
+            ring = _densify(ring)
         lat, lon = ring[:, 0], ring[:, 1]
         step = (np.diff(lon) + 180.0) % 360.0 - 180.0
         lon = lon[0] + np.concatenate([[0.0], np.cumsum(step)])
@@ -121,18 +128,31 @@ def zone_tile_shapes(
     n = 1 << z
     centre = (x + 0.5) / n * 360.0 - 180.0
     rings = _rings(ids, centre)
-    clip = shapely.box(-buffer, -buffer, extent + buffer, extent + buffer)
+    lo, hi = -buffer, extent + buffer
+    clip = shapely.box(lo, lo, hi, hi)
     world = float(n * extent)
+    empty = shapely.Polygon()
     shapes = []
     for ring in rings:
         u, v = _mercator(ring[:, 0], ring[:, 1], z, y, x, extent)
-        polygon = shapely.make_valid(shapely.Polygon(np.column_stack([u, v])))
-        # copies one world to either side reach a tile at the map's edge
-        parts = [
-            shapely.intersection(shapely.affinity.translate(polygon, k * world), clip)
-            for k in (-1, 0, 1)
-        ]
-        shapes.append(_polygonal(shapely.union_all([p for p in parts if not p.is_empty])))
+        if v.max() < lo or v.min() > hi:
+            shapes.append(empty)
+            continue
+        parts = []
+        # the copy of the zone on this world, or one world to either side of it (a tile at
+        # the map's edge), wherever it meets the clip box
+        for shift in (0.0, -world, world):
+            umin, umax = u.min() + shift, u.max() + shift
+            if umax < lo or umin > hi:
+                continue
+            polygon = shapely.make_valid(shapely.Polygon(np.column_stack([u + shift, v])))
+            inside = umin >= lo and umax <= hi and v.min() >= lo and v.max() <= hi
+            parts.append(polygon if inside else shapely.intersection(polygon, clip))
+        parts = [p for p in parts if not p.is_empty]
+        if not parts:
+            shapes.append(empty)
+        else:
+            shapes.append(_polygonal(parts[0] if len(parts) == 1 else shapely.union_all(parts)))
     return shapes
 
 

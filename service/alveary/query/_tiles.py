@@ -208,7 +208,7 @@ class TileZones:
     zones:
         uint64 (n,): the distinct zones, ascending.
     index:
-        int32 (256, 256): for each pixel, its zone's position in ``zones``.
+        uint16 (256, 256): for each pixel, its zone's position in ``zones``.
     edges:
         bool (256, 256): pixels whose right or lower neighbour (possibly in the next
         tile) lies in another zone.
@@ -253,11 +253,13 @@ def tile_zones(z: int, y: int, x: int, level: int) -> TileZones:
     used = np.zeros(len(uniques), dtype=bool)
     used[inner.reshape(-1)] = True
     if used.all():
-        zones, index = np.asarray(uniques, dtype=np.uint64), np.ascontiguousarray(inner)
+        zones, index = np.asarray(uniques, dtype=np.uint64), inner
     else:  # zones met only by the padding row or column are not part of the tile
         remap = np.cumsum(used, dtype=np.int32) - 1
         zones = np.asarray(uniques, dtype=np.uint64)[used]
         index = remap[inner]
+    # 256 × 256 pixels hold at most 65 536 zones: positions fit in 16 bits
+    index = np.ascontiguousarray(index, dtype=np.uint16)
     return TileZones(z, y, x, int(level), zones, index, np.ascontiguousarray(edges))
 
 
