@@ -266,7 +266,8 @@ def tile_zones(z: int, y: int, x: int, level: int) -> TileZones:
 class PixelZoneCache:
     """Pixel-to-zone maps by (z, y, x, level), least recently used first out, bounded in bytes.
 
-    Safe to share between threads. ``hits`` and ``misses`` count lookups.
+    Safe to share between threads (two threads missing the same tile at once both compute
+    it; the maps are equal). ``hits`` and ``misses`` count lookups.
 
     >>> cache = PixelZoneCache(8 << 20)
     >>> a = cache.get(4, 5, 6, 5); b = cache.get(4, 5, 6, 5)
