@@ -37,6 +37,7 @@ from alveary.grid._checks import check_lat_lon
 from alveary.grid._ids import MAX_LEVEL
 from alveary.grid._polygon import Footprint, read_polygon
 from alveary.grid._region_api import bbox_area, zones_in_bbox, zones_in_polygon, zones_in_radius
+from alveary.grid._window import disk_union, disk_windows
 
 __all__ = [
     "EARTH_AREA",
@@ -47,6 +48,8 @@ __all__ = [
     "all_zones",
     "bbox_area",
     "check_lat_lon",
+    "disk_union",
+    "disk_windows",
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",
