@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Any
+from collections.abc import Sequence
+from typing import Any, overload
 
 import numpy as np
 import numpy.typing as npt
@@ -19,6 +20,11 @@ Ids = npt.NDArray[np.uint64]
 Ints = npt.NDArray[np.int64]
 Floats = npt.NDArray[np.float64]
 Bools = npt.NDArray[np.bool_]
+#: One zone id, or one coordinate.
+OneId = int | np.integer[Any]
+One = float | np.floating[Any] | int | np.integer[Any]
+#: Many zone ids, or many coordinates.
+Many = npt.NDArray[Any] | Sequence[Any]
 
 _ALL_ZONES_MAX = 10
 #: A pentagon's area as a share of a hexagon's at the same level.
@@ -78,6 +84,12 @@ def zone_areas(zones: Any) -> Floats:
     return areas
 
 
+@overload
+def point_to_zone(lat: One, lon: One, level: int) -> np.uint64: ...
+@overload
+def point_to_zone(lat: Many, lon: Many | One, level: int) -> Ids: ...
+@overload
+def point_to_zone(lat: Any, lon: Any, level: int) -> Any: ...  # checked when run
 def point_to_zone(lat: Any, lon: Any, level: int) -> Ids | np.uint64:
     """Zone ids (uint64) of WGS84 geodetic points, in degrees, at a level.
 
@@ -131,6 +143,10 @@ def zone_to_point(zones: Any) -> tuple[Any, Any]:
     return lat.reshape(ids.shape), lon.reshape(ids.shape)
 
 
+@overload
+def zone_level(zones: OneId) -> np.int64: ...
+@overload
+def zone_level(zones: Many) -> Ints: ...
 def zone_level(zones: Any) -> Ints | np.int64:
     """Refinement level of each zone.
 
@@ -142,6 +158,10 @@ def zone_level(zones: Any) -> Ints | np.int64:
     return level
 
 
+@overload
+def is_pentagon(zones: OneId) -> np.bool_: ...
+@overload
+def is_pentagon(zones: Many) -> Bools: ...
 def is_pentagon(zones: Any) -> Bools | np.bool_:
     """Whether each zone is one of the twelve pentagons (icosahedron vertices) of its level.
 
@@ -199,6 +219,10 @@ def zone_boundary(zone: Any, *, corners_only: bool = False, face_edges: bool = T
     return out.reshape(ids.shape + out.shape[1:])
 
 
+@overload
+def zone_to_geojson(zones: OneId) -> dict[str, Any]: ...
+@overload
+def zone_to_geojson(zones: Many) -> list[dict[str, Any]]: ...
 def zone_to_geojson(zones: Any) -> dict[str, Any] | list[dict[str, Any]]:
     """The true outline of zones as GeoJSON geometries (RFC 7946), for maps and files.
 
@@ -310,6 +334,10 @@ def all_zones(level: int) -> Ids:
     return _regions.every_zone(level)
 
 
+@overload
+def zone_to_text(zones: OneId) -> np.str_: ...
+@overload
+def zone_to_text(zones: Many) -> npt.NDArray[np.object_]: ...
 def zone_to_text(zones: Any) -> npt.NDArray[np.object_] | np.str_:
     """The readable text form: level, strip letter, row and column (``"12b-3021-877"``).
 

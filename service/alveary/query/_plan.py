@@ -195,7 +195,7 @@ def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, n
         if q.zone is not None:
             centre = np.asarray(q.zone, dtype=np.uint64)
         else:
-            centre = grid.point_to_zone(q.lat, q.lon, level)
+            centre = np.asarray(grid.point_to_zone(q.lat, q.lon, level), dtype=np.uint64)
         ids, steps = grid.zone_disk(centre, q.k, return_steps=True)
         order = np.lexsort((ids, steps))
         return ids[order], {"steps": np.asarray(steps)[order].astype(np.int32)}
