@@ -117,7 +117,7 @@ def outline_areas(zones: np.ndarray) -> np.ndarray:
     return np.array([geodesic_area(r[~np.isnan(r[:, 0])]) for r in rings])
 
 
-@pytest.mark.parametrize("level", [3, 4, 5, pytest.param(6, marks=pytest.mark.slow)])
+@pytest.mark.parametrize("level", [3, 4, 5, 6])
 def test_zone_areas_are_the_geodesic_areas_of_every_zone(level):
     # Every zone's true outline, measured by pyproj.Geod on WGS84, has the area
     # zone_areas gives it (hexagons S / (10 4^r), pentagons 5/6 of that: the design

@@ -35,6 +35,7 @@ import numpy.typing as npt
 from alveary._errors import GridError
 from alveary.grid import _ids, _lattice
 from alveary.grid._api import PENTAGON_SHARE
+from alveary.grid._checks import steps as whole_steps
 
 IntArray = npt.NDArray[np.int64]
 IdArray = npt.NDArray[np.uint64]
@@ -180,13 +181,7 @@ def _unique(x: npt.NDArray[Any]) -> npt.NDArray[Any]:
 
 def _check(zones: Any, k: Any) -> tuple[IdArray, int, int]:
     """Validated (flat ids, level, k)."""
-    try:
-        steps = int(k)
-        ok = steps == k and steps >= 0 and not isinstance(k, bool)
-    except (TypeError, ValueError, OverflowError):
-        ok = False
-    if not ok:
-        raise GridError("k", k, "an integer >= 0")
+    steps = whole_steps(k)
     ids = _as_zones(zones, "zones").reshape(-1)
     if ids.size == 0:
         return ids, 0, steps

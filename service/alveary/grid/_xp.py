@@ -28,30 +28,16 @@ def _where_float(cond: Any, a: Any, b: Any) -> Any:
     return a if cond else b
 
 
-_COMMON = ("sin", "cos", "sqrt", "hypot", "floor", "radians", "degrees", "copysign")
+# Functions of the same name in numpy and the math module.
+_SAME = ("sin", "cos", "sqrt", "hypot", "floor", "radians", "degrees", "copysign")
+# numpy's names for the others, with their counterparts for one Python float.
+_RENAMED: dict[str, Any] = {"arcsin": math.asin, "arccos": math.acos, "arctan2": math.atan2}
+_RENAMED |= {"abs": abs, "rint": round, "maximum": max, "where": _where_float}
 
-#: numpy's functions, for arrays.
-ARRAYS: Any = SimpleNamespace(
-    **{name: getattr(np, name) for name in _COMMON},
-    arcsin=np.arcsin,
-    arccos=np.arccos,
-    arctan2=np.arctan2,
-    abs=np.abs,
-    rint=np.rint,
-    maximum=np.maximum,
-    clip=_clip_arrays,
-    where=np.where,
-)
+#: numpy's functions, for arrays (``clip`` without np.clip's wrapper overhead).
+ARRAYS: Any = SimpleNamespace(**{n: getattr(np, n) for n in (*_SAME, *_RENAMED)})
+ARRAYS.clip = _clip_arrays
 
 #: The math module's, under numpy's names, for single Python floats.
-FLOATS: Any = SimpleNamespace(
-    **{name: getattr(math, name) for name in _COMMON},
-    arcsin=math.asin,
-    arccos=math.acos,
-    arctan2=math.atan2,
-    abs=abs,
-    rint=round,
-    maximum=max,
-    clip=_clip_float,
-    where=_where_float,
-)
+FLOATS: Any = SimpleNamespace(**{n: getattr(math, n) for n in _SAME}, **_RENAMED)
+FLOATS.clip = _clip_float
