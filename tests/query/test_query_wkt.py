@@ -8,6 +8,7 @@ the native GeoJSON polygon reader for the request area.
 from __future__ import annotations
 
 import numpy as np
+import pyproj
 import pytest
 import shapely
 from hypothesis import given, settings
@@ -258,10 +259,11 @@ def test_area_across_the_antimeridian_is_cut():
     assert area.geometry["type"] == "MultiPolygon"
     west, _, east, _ = area.shape.bounds
     assert west == -180 and east == 180
-    # 20° x 5° at the equator, against shapely's area in (lon, sin lat) on the sphere
-    # of radius 6 371 007.181 m.
-    band = np.sin(np.radians(5.0)) * np.radians(20.0) * 6_371_007.1809**2
-    assert area.area_m2 == pytest.approx(band, rel=1e-9)
+    # 20° x 5° at the equator on WGS84: pyproj.Geod's area of the box with its parallels
+    # followed in 0.01° steps (the estimate is exact for longitude/latitude boxes).
+    box = shapely.segmentize(shapely.box(170, 0, 190, 5), 0.01)
+    band = pyproj.Geod(ellps="WGS84").geometry_area_perimeter(box)[0]
+    assert area.area_m2 == pytest.approx(band, rel=1e-6)
 
 
 def test_invalid_area_names_coords():

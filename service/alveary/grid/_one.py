@@ -45,7 +45,7 @@ def zone_ints(zones: Any, parameter: str = "zones") -> list[int] | None:
     elif (
         isinstance(zones, np.ndarray)
         and zones.ndim == 1
-        and zones.size <= SMALL
+        and 0 < zones.size <= SMALL
         and zones.dtype.kind in "ui"
     ):
         values = zones.tolist()

@@ -80,7 +80,7 @@ def _short(value: Any) -> str:
 
 
 def _fail(value: Any, allowed: str, where: Where | None = None) -> GridError:
-    index = None if where is None else (where[0] if len(where) == 1 else where)
+    index = None if not where else (where[0] if len(where) == 1 else where)
     return GridError(_PARAM, value, allowed, index=index)
 
 

@@ -63,8 +63,11 @@ def lonlat_to_xyz(lat: Any, lon: Any) -> Floats:
 
 
 def lonlat_of(x: Any, y: Any, z: Any, xp: Any) -> tuple[Any, Any]:
-    """Spherical (lat, lon) in degrees of a vector's components; longitude in [-180, 180]."""
-    return xp.degrees(xp.arctan2(z, xp.hypot(x, y))), xp.degrees(xp.arctan2(y, x))
+    """Spherical (lat, lon) in degrees of a vector's components; longitude in [-180, 180],
+    and 0 at the poles (where rounding would make it anything)."""
+    off_axis = xp.hypot(x, y)
+    lon = xp.where(off_axis < 1e-14, 0.0, xp.degrees(xp.arctan2(y, x)))
+    return xp.degrees(xp.arctan2(z, off_axis)), lon
 
 
 def xyz_to_lonlat(xyz: Floats) -> tuple[Floats, Floats]:
