@@ -186,9 +186,9 @@ def zone_boundary(zone: Any, *, corners_only: bool = False, face_edges: bool = T
     lines from a face's centre to its vertices, and at coarse levels they sag away from the
     geodesics between their corners. The outline holds the corners, those bends and, where
     needed, points along the edges, every one on the zone's true edge, so that the
-    geodesics between neighbouring points stay within 0.25 m (or 1e-4 of the lattice
-    spacing, if smaller) of it: geodesic areas match :func:`zone_areas` to about 1e-5 at
-    every level, and the outline holds every point that :func:`point_to_zone` puts in the
+    geodesics between neighbouring points stay within 0.25 m (or 2e-5 of the lattice
+    spacing, if smaller) of it: geodesic areas match :func:`zone_areas` to 3e-5 at every
+    level, and the outline holds every point that :func:`point_to_zone` puts in the
     zone, but for points closer than that to its edge. With ``corners_only`` just the 6
     corners (5 for pentagons); their geodesic polygon can miss the zone's area by a few
     per cent (pentagons, zones around a face's centre) and its edges by kilometres at

@@ -34,7 +34,7 @@ Ids = npt.NDArray[np.uint64]
 #: Largest distance (m) between an outline's geodesic chords and the true edge...
 TOLERANCE_M = 0.25
 #: ... or this share of the lattice spacing, whichever is smaller.
-TOLERANCE_SHARE = 1e-4
+TOLERANCE_SHARE = 2e-5
 _MAX_ROUNDS = 12
 _MAX_SPLIT = 64  # pieces per round
 _BLOCK = 4096  # zones per block: bounds the temporaries
