@@ -53,7 +53,7 @@ def test_pyramid_keeps_the_global_area_mean(tmp_path):
         0, 0.1, (lat.size, lon.size)
     )
     path = write_geotiff(tmp_path / "f.tif", field, west=-180, north=90, step_x=0.5)
-    ingest([path], str(tmp_path / "c"), 6, pyramid=True, cube_id="f")
+    ingest([path], str(tmp_path / "c"), 6, pyramid=True, cube_id="f", time="2024-01-01")
     cube = open_cube(str(tmp_path / "c"))
     assert cube.levels == tuple(range(7))
     means = []
@@ -73,7 +73,15 @@ def test_pyramid_regional_mean_agrees_between_levels(tmp_path):
     lon, lat = lonlat_axes(0.02, 20.0, 40.0, 26.0, 46.0)
     field = np.add.outer(lat, lon * 0.5)
     path = write_geotiff(tmp_path / "r.tif", field, west=20, north=46, step_x=0.02)
-    ingest([path], str(tmp_path / "c"), 9, pyramid=True, pyramid_min_level=7, cube_id="r")
+    ingest(
+        [path],
+        str(tmp_path / "c"),
+        9,
+        pyramid=True,
+        pyramid_min_level=7,
+        cube_id="r",
+        time="2024-01-01",
+    )
     cube = open_cube(str(tmp_path / "c"))
     coarse = grid.zones_in_bbox(21.0, 41.0, 25.0, 45.0, 8)
     ids, cw = child_weights(coarse)

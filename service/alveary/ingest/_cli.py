@@ -1,4 +1,4 @@
-"""``alveary ingest`` (and the demo build): register(subparsers) for the command line."""
+"""``alveary ingest``, ``versions``, ``rollback`` and ``build-demo``: register(subparsers)."""
 
 from __future__ import annotations
 
@@ -10,14 +10,15 @@ from typing import Any
 __all__ = ["register"]
 
 
-def register(subparsers: Any) -> None:
-    """Add ``ingest`` and ``build-demo`` (and ``demo`` if no other layer provides it)."""
+def _ingest_parser(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "ingest",
         help="build a cube from GeoTIFF, NetCDF, Zarr, CSV or Parquet sources",
         description=(
             "Resample sources to a refinement level of the grid and publish a new version "
-            "of the cube at --out (a local path or an fsspec URL such as s3://bucket/x)."
+            "of the cube at --out (a local path or an fsspec URL such as s3://bucket/x). "
+            "A build that would change a published cube is refused unless --append or "
+            "--replace says what to do."
         ),
     )
     p.add_argument("sources", nargs="+", metavar="SOURCE", help="input files")
@@ -41,9 +42,58 @@ def register(subparsers: Any) -> None:
     p.add_argument("--time-block", type=int, default=None, metavar="N")
     p.add_argument("--spatial-block", type=int, default=None, metavar="N")
     p.add_argument("--time-step", default="1D", help="binning step for point tables")
+    p.add_argument(
+        "--time", default=None, metavar="INSTANT", help="the instant of sources without a time axis"
+    )
+    mode = p.add_mutually_exclusive_group()
+    mode.add_argument(
+        "--append",
+        action="store_true",
+        help="add new time steps (and variables) to the published cube as a new version",
+    )
+    mode.add_argument(
+        "--replace", action="store_true", help="publish this build in place of the cube"
+    )
+    p.add_argument(
+        "--overwrite-steps",
+        action="store_true",
+        help="with --append: replace time steps the cube already has",
+    )
+    p.add_argument("--keep-versions", type=int, default=None, metavar="N", help="versions kept")
+    p.add_argument(
+        "--grace-seconds",
+        type=float,
+        default=None,
+        metavar="S",
+        help="seconds a retired version stays (longer than any service's refresh interval)",
+    )
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     p.set_defaults(handler=_ingest)
 
+
+def _version_parsers(subparsers: Any) -> None:
+    v = subparsers.add_parser(
+        "versions",
+        help="list the published versions of a cube",
+        description="List the published versions of the cube at CUBE_URL, newest first.",
+    )
+    v.add_argument("url", metavar="CUBE_URL")
+    v.set_defaults(handler=_versions)
+    r = subparsers.add_parser(
+        "rollback",
+        help="make a kept version of a cube current again",
+        description="Switch the cube's pointer to VERSION (one atomic write).",
+    )
+    r.add_argument("url", metavar="CUBE_URL")
+    r.add_argument("version", metavar="VERSION")
+    r.set_defaults(handler=_rollback)
+
+
+def register(subparsers: Any) -> None:
+    """Add ``ingest``, ``versions``, ``rollback``, ``build-demo`` (and ``demo`` if no other
+    layer provides it)."""
+    _ingest_parser(subparsers)
+    _version_parsers(subparsers)
     b = subparsers.add_parser(
         "build-demo",
         help="build the demo cube (invented data) on the embedded store",
@@ -62,7 +112,6 @@ def register(subparsers: Any) -> None:
 
 
 def _ingest(args: argparse.Namespace) -> int:
-    from alveary.cube._layout import DEFAULT_SPATIAL_BLOCK, DEFAULT_TIME_BLOCK
     from alveary.ingest._build import ingest
 
     summary = ingest(
@@ -78,12 +127,38 @@ def _ingest(args: argparse.Namespace) -> int:
         mean_depth=args.mean_depth,
         min_coverage=args.min_coverage,
         pyramid_min_level=args.pyramid_min_level,
-        time_block=args.time_block or DEFAULT_TIME_BLOCK,
-        spatial_block=args.spatial_block or DEFAULT_SPATIAL_BLOCK,
+        time_block=args.time_block,
+        spatial_block=args.spatial_block,
         time_step=args.time_step,
+        time=args.time,
+        append=args.append,
+        replace=args.replace,
+        overwrite_steps=args.overwrite_steps,
+        keep_versions=args.keep_versions,
+        grace_seconds=args.grace_seconds,
         progress=not args.no_progress and sys.stderr.isatty(),
     )
     print(summary.text())
+    return 0
+
+
+def _versions(args: argparse.Namespace) -> int:
+    from alveary.cube import list_versions
+
+    rows = [v.row() for v in list_versions(args.url)]
+    cols = ("version", "published", "state", "steps", "bytes", "variables")
+    width = {c: max(len(c), *(len(str(r[c])) for r in rows)) for c in cols}
+    print("  ".join(c.ljust(width[c]) for c in cols).rstrip())
+    for r in rows:
+        print("  ".join(str(r[c]).ljust(width[c]) for c in cols).rstrip())
+    return 0
+
+
+def _rollback(args: argparse.Namespace) -> int:
+    from alveary.cube import rollback
+
+    pointer = rollback(args.url, args.version)
+    print(f"cube {pointer.cube_id} at {args.url}: current version {pointer.version}")
     return 0
 
 

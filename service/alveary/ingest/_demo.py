@@ -191,6 +191,7 @@ def build_demo(
                 "does not exist. Demo data only: not for irrigation or any other decision."
             ),
             progress=progress,
+            replace=True,
         )
     build_demo.last_summary = summary  # type: ignore[attr-defined]
     return url
