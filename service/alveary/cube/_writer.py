@@ -24,7 +24,7 @@ import json
 import secrets
 import warnings
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from datetime import UTC, datetime
 from functools import lru_cache
 from typing import Any
@@ -474,8 +474,9 @@ class CubeWriter:
         for path, node in consolidated.flattened_metadata.items():
             if isinstance(node, ArrayV3Metadata):
                 arrays[path] = node
-            else:
-                nodes[path] = node.to_buffer_dict(proto)["zarr.json"].to_bytes()
+            else:  # a group: its document without the nested consolidated copy
+                plain = replace(node, consolidated_metadata=None)
+                nodes[path] = plain.to_buffer_dict(proto)["zarr.json"].to_bytes()
         manifest = await read_manifest(self._store, version)
         if manifest is None:
             manifest = await self._listed_manifest(version, arrays)
