@@ -120,9 +120,13 @@ def write_format1_cube(root, cube_id, times, level, name, values):
         compressors=blosc,
     )
     apex = g.create_array(
-        f"{name}/{level}/apex", shape=(nt, 2), chunks=(nt, 2), dtype="float32",
-        fill_value=np.nan, compressors=blosc,
-    )  # fmt: skip
+        f"{name}/{level}/apex",
+        shape=(nt, 2),
+        chunks=(nt, 2),
+        dtype="float32",
+        fill_value=np.nan,
+        compressors=blosc,
+    )
     zones = grid.all_zones(level)
     _, region, i, j = (np.asarray(a) for a in grid.zone_to_index(zones))
     full = np.full((nt, 5, 2 * n, n), np.nan, "f4")
@@ -150,13 +154,13 @@ def write_format1_cube(root, cube_id, times, level, name, values):
                         "_FillValue": "NaN",
                         "aggregation": "mean",
                     }
-                },  # fmt: skip
+                },
                 "time": {
                     "units": "seconds since 1970-01-01T00:00:00Z",
                     "count": nt,
                     "first": first,
                     "last": last,
-                },  # fmt: skip
+                },
                 "coverage": {"bbox": [-180.0, -90.0, 180.0, 90.0], "crs": "EPSG:4326"},
                 "chunks": {str(level): {"time": nt, "rows": rows, "cols": cols}},
                 "shards": {str(level): None},
@@ -166,7 +170,13 @@ def write_format1_cube(root, cube_id, times, level, name, values):
         }
     )
     zarr.consolidate_metadata(store, path=f"versions/{version}", zarr_format=3)
-    pointer = {"format": "alveary-cube", "format_version": 1, "cube_id": cube_id,
-               "version": version, "published": "2024-01-01T00:00:00Z", "history": [version]}  # fmt: skip
+    pointer = {
+        "format": "alveary-cube",
+        "format_version": 1,
+        "cube_id": cube_id,
+        "version": version,
+        "published": "2024-01-01T00:00:00Z",
+        "history": [version],
+    }
     (Path(root) / "current.json").write_text(json.dumps(pointer))
     return version

@@ -112,8 +112,15 @@ def test_a_different_build_is_refused_naming_each_difference(tmp_path, series):
     before = {p: p.read_bytes() for p in out.rglob("*") if p.is_file()}
     paths, _ = daily_geotiffs(tmp_path / "other", "rain", DAYS[:3], seed=1, **BOX)
     with pytest.raises(IngestError) as err:
-        ingest(paths, str(out), LEVEL + 1, time_block=2, title="Rain", pyramid=True,
-               pyramid_min_level=LEVEL)  # fmt: skip
+        ingest(
+            paths,
+            str(out),
+            LEVEL + 1,
+            time_block=2,
+            title="Rain",
+            pyramid=True,
+            pyramid_min_level=LEVEL,
+        )
     text = str(err.value)
     for words in (
         "title 'Air temperature' -> 'Rain'",
@@ -196,7 +203,7 @@ def test_a_source_without_time_needs_an_instant(tmp_path):
     from cube_sources import write_geotiff
 
     path = write_geotiff(tmp_path / "dem.tif", np.ones((10, 10), "f4"), west=0, north=10, step_x=1)
-    with pytest.raises(IngestError, match="no time axis.*--time"):
+    with pytest.raises(IngestError, match=r"no time axis.*--time"):
         ingest([path], str(tmp_path / "c"), 3)
     done = _cli("ingest", path, "--out", str(tmp_path / "c"), "--level", "3")
     assert done.returncode == 2 and "--time" in done.stderr
