@@ -259,17 +259,16 @@ async def _prune_dir(store: Store, version: str, keep: set[str]) -> None:
 
 
 async def delete_versions(store: Store, pointer: Pointer, due: list[str]) -> None:
-    """Delete the objects of ``due`` versions that no listed version references, and
-    those of directories kept only for their referenced chunks."""
+    """Delete the objects of ``due`` versions, and of the directories they took chunks
+    from, that no version the pointer lists references any more."""
     if not due:
         return
+    candidates = set(due) | set(await _references(store, tuple(due)))
     refs = await _references(store, pointer.listed)
-    holding = [v for v in refs if v not in pointer.listed and v not in due]
-    for version in [*due, *holding]:
+    for version in sorted(candidates - set(pointer.listed)):
         keys = refs.get(version, set())
-        if keys is None:
-            continue
-        await _prune_dir(store, version, keys)
+        if keys is not None:
+            await _prune_dir(store, version, keys)
 
 
 async def drop_unpublished(store: Store, pointer: Pointer | None, building: str) -> None:

@@ -641,8 +641,9 @@ class CubeWriter:
             raise InvalidInput("level", level, f"one of {list(self.levels)}")
         return self.variables[variable], self.layouts[level]
 
-    def write(self, variable: str, level: int, zones: Any, values: Any) -> None:
-        """Write values ``(time, zone)`` (or ``(zone,)`` for a one-step axis) of zones.
+    def write(self, variable: str, level: int, zones: Any, values: Any, start: int = 0) -> None:
+        """Write values ``(time, zone)`` (or ``(zone,)`` for one step) of zones, for the
+        time steps from ``start`` on (default: all of them).
 
         NaN means no data. Zones can be written in any grouping and order: a chunk the
         version holds already (written before, or inherited) is read, updated and
@@ -655,13 +656,19 @@ class CubeWriter:
         vals = np.asarray(values, dtype=np.float64)
         if vals.ndim == 1:
             vals = vals[None, :]
-        if vals.shape != (self.times.size, zones.size):
+        start = int(start)
+        steps = self.times.size - start if vals.shape[0] == 0 else vals.shape[0]
+        if not 0 <= start < self.times.size or start + steps > self.times.size:
+            raise InvalidInput("start", start, f"a step in [0, {self.times.size - steps}]")
+        if start == 0 and vals.shape != (self.times.size, zones.size):
             raise InvalidInput("values", vals.shape, f"shape {(self.times.size, zones.size)}")
+        if vals.shape[1] != zones.size:
+            raise InvalidInput("values", vals.shape, f"shape (steps, {zones.size})")
         lvl, region, i, j = grid.zone_to_index(zones)
         if zones.size and (np.asarray(lvl) != level).any():
             raise InvalidInput("zones", None, f"zones of level {level} only")
         plan = plan_cells(
-            lay, f"{variable}/{level}", region, i, j, slice(0, self.times.size), info.itemsize
+            lay, f"{variable}/{level}", region, i, j, slice(start, start + steps), info.itemsize
         )
         sync(self._write_plan(info, plan, vals))
 
