@@ -24,7 +24,6 @@ from alveary import grid
 
 __all__ = ["aggregate_children", "child_weights", "descendant_weights", "stencil"]
 
-PENTAGON_AREA = 5.0 / 6.0
 # lattice offsets (dA, dB) of the six edge children around the central child (2a, 2b)
 _EDGE = ((1, 0), (0, 1), (-1, 1), (-1, 0), (0, -1), (1, -1))
 
@@ -70,7 +69,7 @@ def child_weights(zones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     live = w > 0
     if live.any():
         pent[live] = np.asarray(grid.is_pentagon(ids[live]))
-    w[pent] *= PENTAGON_AREA
+    w[pent] *= grid.PENTAGON_SHARE
     return ids, w
 
 
@@ -98,7 +97,7 @@ def _recursive(zones: np.ndarray, depth: int) -> tuple[np.ndarray, np.ndarray, n
         w = np.bincount(kinv, weights=ww)
         rows = ukey // fine.size
         ids = fine[ukey % fine.size]
-    w = w * np.where(np.asarray(grid.is_pentagon(ids)), PENTAGON_AREA, 1.0)
+    w = w * np.where(np.asarray(grid.is_pentagon(ids)), grid.PENTAGON_SHARE, 1.0)
     return rows, ids, w
 
 
