@@ -41,7 +41,8 @@ def _by_hand(zones, depth):
         weights = nxt
     fine = np.array(sorted({f for d in weights.values() for f in d}), dtype=np.uint64)
     level = int(grid.zone_level(fine[:1])[0])
-    rel = dict(zip(fine.tolist(), (grid.zone_areas(fine) / grid.zone_area(level)).tolist()))
+    share = grid.zone_areas(fine) / grid.zone_area(level)
+    rel = dict(zip(fine.tolist(), share.tolist(), strict=True))
     return {(z, f): float(w) * rel[f] for z, d in weights.items() for f, w in d.items()}
 
 

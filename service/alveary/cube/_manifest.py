@@ -170,6 +170,7 @@ class Manifest:
 
     Examples
     --------
+    >>> import json
     >>> b = ManifestBuilder("v2", {"t/1/apex": (3, 1)})
     >>> b.add("t/1/apex", (2, 0))
     >>> m = b.build()

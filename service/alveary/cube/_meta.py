@@ -410,20 +410,21 @@ class CubeMeta:
                 int(k): ChunkShape(int(c["time"]), int(c["rows"]), int(c["cols"]))
                 for k, c in block["chunks"].items()
             }
-            shards = {
-                int(k): (None if v is None else tuple(int(x) for x in v))
+            shards: dict[int, tuple[int, int, int] | None] = {
+                int(k): (None if v is None else (int(v[0]), int(v[1]), int(v[2])))
                 for k, v in block.get("shards", {}).items()
             }
+            w, s, e, n = (float(x) for x in block["coverage"]["bbox"])
             variables = {k: VariableInfo.from_json(k, v) for k, v in block["variables"].items()}
             return cls(
-                id=block["id"],
-                title=block.get("title", block["id"]),
+                id=str(block["id"]),
+                title=str(block.get("title", block["id"])),
                 levels=tuple(sorted(int(x) for x in block["levels"])),
                 times=times,
                 variables=variables,
                 chunks=chunks,
                 shards=shards,
-                coverage=tuple(float(x) for x in block["coverage"]["bbox"]),
+                coverage=(w, s, e, n),
                 version=block["version"],
                 created=block.get("created", ""),
                 summary=attrs.get("summary", ""),

@@ -136,7 +136,7 @@ def plan_cells(
             kk, rest = divmod(u, nr * nc)
             rr, cc = divmod(rest, nc)
             cols = pos[sel]
-            cells = (np.zeros(sel.size, dtype=np.int64), di[sel], dj[sel])
+            cells: tuple[np.ndarray, ...] = (np.zeros(sel.size, np.int64), di[sel], dj[sel])
             for tb in tblocks.tolist():
                 reads.append(_read(layout, array, (tb, kk, rr, cc), t0, t1, cols, cells, nbytes))
 
@@ -168,6 +168,7 @@ def _read(
     tb = coords[0]
     c0, c1 = layout.time_range(tb)
     a, b = max(t0, c0), min(t1, c1)
+    selection: tuple[slice, ...]
     if len(coords) == 4:
         selection = layout.strip_chunk_selection(*coords)
     else:

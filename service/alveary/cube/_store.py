@@ -82,7 +82,7 @@ def _fsspec_options(protocol: str, options: dict[str, Any] | None) -> dict[str, 
     return opts
 
 
-class CountingStore(WrapperStore):
+class CountingStore(WrapperStore[Store]):
     """A store wrapper that counts GET requests and bytes into :class:`IOStats` sinks."""
 
     def __init__(self, store: Store, sinks: tuple[IOStats, ...] = ()) -> None:
@@ -139,7 +139,8 @@ async def get_json(store: Store, key: str) -> dict[str, Any] | None:
     buf = await store.get(key, default_buffer_prototype())
     if buf is None:
         return None
-    return json.loads(buf.to_bytes())
+    data: dict[str, Any] = json.loads(buf.to_bytes())
+    return data
 
 
 async def put_json_atomic(store: Store, key: str, data: dict[str, Any]) -> None:

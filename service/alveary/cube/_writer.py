@@ -38,7 +38,7 @@ from zarr.abc.store import Store
 from zarr.codecs import BloscCodec, Crc32cCodec
 from zarr.core.array import AsyncArray
 from zarr.core.buffer import default_buffer_prototype
-from zarr.core.group import AsyncGroup
+from zarr.core.group import AsyncGroup, GroupMetadata
 from zarr.core.metadata.v3 import ArrayV3Metadata
 from zarr.core.sync import sync
 from zarr.storage import MemoryStore, StorePath
@@ -120,7 +120,7 @@ def array_paths(variable: str, level: int) -> tuple[str, str]:
 
 
 @lru_cache(maxsize=256)
-def _array(url: str, options: str, version: str, path: str) -> zarr.Array:
+def _array(url: str, options: str, version: str, path: str) -> zarr.Array[Any]:
     """An array of an unpublished version, opened for writing once per process.
 
     ``options`` is the storage options as JSON (so that the arguments are hashable).
@@ -166,10 +166,10 @@ class ChunkSink:
         self.view = view
         self._options = json.dumps(storage_options or {}, sort_keys=True)
 
-    def _writable(self, path: str) -> zarr.Array:
+    def _writable(self, path: str) -> zarr.Array[Any]:
         return _array(self.url, self._options, self.version, path)
 
-    def _readable(self, path: str) -> zarr.Array:
+    def _readable(self, path: str) -> zarr.Array[Any]:
         """The array read through the view: inherited chunks come from their owner."""
         w = self._writable(path)
         if self.view is None:
@@ -266,8 +266,9 @@ class ChunkSink:
             if not self.holds(cr.array, cr.coords):
                 continue
             data = np.asarray(self._readable(cr.array)[cr.selection])
-            out[cr.out_time, cr.columns] = info.decode(data[(cr.in_time, *cr.cells)])
-        return out
+            where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+            out[cr.out_time, cr.columns] = info.decode(data[where])
+        return np.asarray(out, dtype=np.float64)
 
 
 def _grids(
@@ -462,7 +463,9 @@ class CubeWriter:
         group = await zasync.open_group(
             store=self._store, path=root, mode="r", zarr_format=3, use_consolidated=True
         )
-        seconds = await (await group.getitem("time")).getitem(slice(None))
+        tarr = await group.getitem("time")
+        assert isinstance(tarr, AsyncArray)
+        seconds = await tarr.getitem(slice(None))
         times = np.asarray(seconds, dtype=np.int64).astype("datetime64[s]")
         meta = CubeMeta.from_attrs(dict(group.attrs), times)
         self._check_base(meta)
@@ -474,7 +477,7 @@ class CubeWriter:
         for path, node in consolidated.flattened_metadata.items():
             if isinstance(node, ArrayV3Metadata):
                 arrays[path] = node
-            else:  # a group: its document without the nested consolidated copy
+            elif isinstance(node, GroupMetadata):  # without its nested consolidated copy
                 plain = replace(node, consolidated_metadata=None)
                 nodes[path] = plain.to_buffer_dict(proto)["zarr.json"].to_bytes()
         manifest = await read_manifest(self._store, version)
@@ -691,7 +694,8 @@ class CubeWriter:
                     cur = info.decode(np.asarray(await src.getitem(cr.selection)))
                 else:
                     cur = np.full(tuple(s.stop - s.start for s in cr.selection), np.nan)
-                cur[(cr.in_time, *cr.cells)] = vals[cr.out_time][:, cr.columns]
+                where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+                cur[where] = vals[cr.out_time][:, cr.columns]
                 if np.isfinite(cur).any():
                     await arr.setitem(cr.selection, info.encode(cur))
                     self._builder.add(cr.array, cr.coords)

@@ -214,10 +214,10 @@ class _Run:
                     per_chunk.setdefault(chunk, {}).setdefault(var, _EMPTY)
         if not per_chunk:
             return
-        blocks = tuple(_blocks(layout, np.any(list(defined.values()), axis=0)))
+        every = tuple(_blocks(layout, np.any(list(defined.values()), axis=0)))
         sink = self.writer.sink
         tasks = [
-            PointTask(sink, layout, c, blocks, payload, defined)
+            PointTask(sink, layout, c, every, payload, defined)
             for c, payload in sorted(per_chunk.items())
         ]
         self.collect(layout.level, self.runner.run(tasks, f"level {layout.level} points"))

@@ -125,7 +125,8 @@ class RasterSource:
             e = ((e + 180.0) % 360.0) - 180.0
             return (w, max(-90.0, s), e, min(90.0, n))
         tr = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
-        return tuple(float(v) for v in tr.transform_bounds(w, s, e, n, densify_pts=21))
+        w2, s2, e2, n2 = tr.transform_bounds(w, s, e, n, densify_pts=21)
+        return (float(w2), float(s2), float(e2), float(n2))
 
     def is_global(self) -> bool:
         w, s, e, n = self.lonlat_bounds()
@@ -185,12 +186,12 @@ class RasterSource:
         return out
 
 
-def _is_plain_lonlat(crs) -> bool:
+def _is_plain_lonlat(crs: CRS) -> bool:
     # WGS84 (or an ellipsoid close enough for pixel lookup) with lon/lat degrees
     try:
-        return crs.to_epsg() in (4326, 4979, 4269, 4258) or crs.datum.name.startswith(
-            "World Geodetic System 1984"
-        )
+        if crs.to_epsg() in (4326, 4979, 4269, 4258):
+            return True
+        return crs.datum is not None and crs.datum.name.startswith("World Geodetic System 1984")
     except Exception:  # pragma: no cover - pyproj edge cases
         return False
 
@@ -236,7 +237,7 @@ def _read_gtiff(path: str, band: int, rows: slice, cols: slice) -> np.ndarray:
 
     with rasterio.open(path) as ds:
         win = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
-        return ds.read(band, window=win)
+        return np.asarray(ds.read(band, window=win))
 
 
 def _gtiff_info(path: str) -> dict[str, Any]:
@@ -281,7 +282,9 @@ def _tiff_time(text: str | None) -> np.datetime64 | None:
     return None
 
 
-def _check_same_grid(name: str, first: tuple[str, dict], other: tuple[str, dict]) -> None:
+def _check_same_grid(
+    name: str, first: tuple[str, dict[str, Any]], other: tuple[str, dict[str, Any]]
+) -> None:
     (p0, a), (p1, b) = first, other
 
     same = (
@@ -417,7 +420,7 @@ _DS_LOCK = threading.Lock()
 _DATASETS: dict[tuple[str, str | None], Any] = {}
 
 
-def _open_ds(path: str, engine: str | None):
+def _open_ds(path: str, engine: str | None) -> Any:
     """An opened dataset, kept for the process (xarray locks its file reads itself).
 
     Worker threads come and go (dask.distributed recycles them), so the cache is per
@@ -433,13 +436,12 @@ def _open_ds(path: str, engine: str | None):
                 for old in _DATASETS.values():
                     old.close()
                 _DATASETS.clear()
-            kw = {"mask_and_scale": False, "decode_times": True}
             if engine == "zarr":
                 with warnings.catch_warnings():  # sources without consolidated metadata
                     warnings.simplefilter("ignore", RuntimeWarning)
-                    ds = xr.open_zarr(path, **kw)
+                    ds = xr.open_zarr(path, mask_and_scale=False, decode_times=True)
             else:
-                ds = xr.open_dataset(path, engine=engine, **kw)
+                ds = xr.open_dataset(path, engine=engine, mask_and_scale=False, decode_times=True)
             _DATASETS[key] = ds
         return ds
 
@@ -448,8 +450,9 @@ def _read_xarray(src: RasterSource, path: str, sel: Any, rows: slice, cols: slic
     var, tindex = sel
     ds = _open_ds(path, src.engine)
     da = ds[var]
+    assert src.dims is not None
     ydim, xdim = src.dims
-    isel = {ydim: rows, xdim: cols}
+    isel: dict[str, slice | int] = {ydim: rows, xdim: cols}
     if src.time_dim is not None and tindex is not None:
         isel[src.time_dim] = int(tindex)
     da = da.isel(isel)
@@ -498,33 +501,32 @@ def _find_axes(ds: Any, da: Any, path: str) -> tuple[str, str, str | None, CRS]:
             "source", path, f"variable {da.name!r} with latitude/longitude or y/x dimensions"
         )
     if roles[ydim] == "lat" and roles[xdim] == "lon":
-        crs = CRS.from_epsg(4326)
-    else:
-        crs = None
-        gm = da.attrs.get("grid_mapping")
-        if gm and gm in ds.variables:
-            attrs = dict(ds[gm].attrs)
-            for key in ("crs_wkt", "spatial_ref"):
-                if key in attrs:
-                    try:
-                        crs = CRS.from_wkt(str(attrs[key]))
-                    except Exception:
-                        crs = None
-                    break
-            if crs is None:
+        return str(ydim), str(xdim), tdim, CRS.from_epsg(4326)
+    return str(ydim), str(xdim), tdim, _grid_mapping_crs(ds, da, path)
+
+
+def _grid_mapping_crs(ds: Any, da: Any, path: str) -> CRS:
+    """The CRS of a CF ``grid_mapping`` variable (WKT, or CF projection attributes)."""
+    gm = da.attrs.get("grid_mapping")
+    if gm and gm in ds.variables:
+        attrs = dict(ds[gm].attrs)
+        for key in ("crs_wkt", "spatial_ref"):
+            if key in attrs:
                 try:
-                    crs = CRS.from_cf(attrs)
+                    return CRS.from_wkt(str(attrs[key]))
                 except Exception:
-                    crs = None
-        if crs is None:
-            raise IngestError(
-                "source",
-                path,
-                f"a CRS for variable {da.name!r}: projected x/y axes need a CF grid_mapping "
-                "(crs_wkt, spatial_ref or CF projection attributes) pyproj can read "
-                "(unknown CRS)",
-            )
-    return ydim, xdim, tdim, crs
+                    break
+        try:
+            return CRS.from_cf(attrs)
+        except Exception:
+            pass
+    raise IngestError(
+        "source",
+        path,
+        f"a CRS for variable {da.name!r}: projected x/y axes need a CF grid_mapping "
+        "(crs_wkt, spatial_ref or CF projection attributes) pyproj can read "
+        "(unknown CRS)",
+    )
 
 
 def _engine(path: str) -> str | None:

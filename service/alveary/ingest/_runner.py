@@ -22,10 +22,11 @@ class Runner:
         self.client: Any = None
         self.progress = progress
         if scheduler:
-            from distributed import Client
+            import distributed
 
+            lib: Any = distributed  # untyped
             try:
-                self.client = Client(scheduler, timeout="10s", set_as_default=False)
+                self.client = lib.Client(scheduler, timeout="10s", set_as_default=False)
             except (OSError, TimeoutError, ValueError) as exc:
                 raise IngestError(
                     "scheduler", scheduler, f"the address of a running dask scheduler ({exc})"
@@ -55,22 +56,24 @@ class Runner:
         import dask
         from dask.callbacks import Callback
 
-        delayed = [dask.delayed(run_task, pure=False)(t) for t in tasks]
+        lib: Any = dask  # untyped
+        delayed = [lib.delayed(run_task, pure=False)(t) for t in tasks]
 
-        class _Tick(Callback):  # type: ignore[misc]
-            def _posttask(self, key: Any, result: Any, dsk: Any, state: Any, worker: Any) -> None:
-                if bar is not None and isinstance(result, TaskResult):
-                    bar.update(1)
+        def tick(key: Any, result: Any, dsk: Any, state: Any, worker: Any) -> None:
+            if bar is not None and isinstance(result, TaskResult):
+                bar.update(1)
 
-        with _Tick():
-            return list(dask.compute(*delayed, scheduler="threads"))
+        callback: Any = Callback
+        with callback(posttask=tick):
+            return list(lib.compute(*delayed, scheduler="threads"))
 
     def _distributed(self, tasks: Sequence[Task], bar: Any) -> list[TaskResult]:
-        from distributed import as_completed
+        import distributed
 
+        lib: Any = distributed  # untyped
         futures = [self.client.submit(run_task, t, pure=False) for t in tasks]
         results = []
-        for fut in as_completed(futures, loop=self.client.loop):
+        for fut in lib.as_completed(futures, loop=self.client.loop):
             results.append(fut.result())
             if bar is not None:
                 bar.update(1)

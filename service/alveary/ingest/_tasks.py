@@ -53,7 +53,10 @@ class TaskResult:
 
 
 class Task(Protocol):
-    chunk: Chunk
+    """A unit of work: one spatial chunk over some time blocks."""
+
+    @property
+    def chunk(self) -> Chunk: ...
 
     def run(self) -> TaskResult: ...
 
