@@ -81,7 +81,7 @@ def footprint_text(box: BBox) -> str:
     >>> footprint_text((-81.0, 0.0, -80.99991, 0.00009))
     'west -81.0, south 0.0, east -80.99991, north 9e-05 (degrees)'
     """
-    w, s, e, n = (float(f"{v:.6g}") for v in box)
+    w, s, e, n = (float(f"{v:.8g}") for v in box)
     return f"west {w}, south {s}, east {e}, north {n} (degrees)"
 
 
