@@ -100,6 +100,8 @@ def candidate_chunks(
         if e < w:  # crosses 180°: unwrap, zones_in_bbox wraps it back
             e += 360.0
         s2, n2 = max(-90.0, s - pad_deg), min(90.0, n + pad_deg)
+        if e - w + 2 * pad_deg >= 360.0 and s2 == -90.0 and n2 == 90.0:
+            return [(int(k), int(r), int(c)) for k, r, c in layout.all_spatial_chunks()]
         zones = grid.zones_in_bbox(w - pad_deg, s2, e + pad_deg, n2, layout.level)
         if zones.size == 0:
             zones = np.atleast_1d(grid.point_to_zone((s + n) / 2, (w + e) / 2, layout.level))
