@@ -200,3 +200,38 @@ def test_a_flipped_byte_on_s3_fails_the_checksum(s3_server, appended):
     with pytest.raises(ValueError) as err:
         cube.read("x", zones[:1], TIMES[60], TIMES[60])
     assert is_checksum_error(err.value)
+
+
+def test_retention_on_s3_deletes_only_unreferenced_objects(s3_server):
+    bucket = s3_server.create_bucket()
+    url, options = f"s3://{bucket}/keep", s3_server.storage_options()
+    zones = grid.zones_in_bbox(10.0, 40.0, 20.0, 50.0, LEVEL)
+
+    def publish(ndays, start, inherit):
+        w = create_cube(
+            url,
+            cube_id="keep",
+            times=TIMES[:ndays],
+            levels=[LEVEL],
+            variables={"x": {"units": "1"}},
+            chunks=ChunkShape(16, 32, 16),
+            storage_options=options,
+            inherit=inherit,
+            keep_versions=1,
+            grace_seconds=0,
+        )
+        w.write("x", LEVEL, zones, np.ones((ndays - start, zones.size)), start=start)
+        return w.publish()
+
+    first = publish(40, 0, False)
+    second = publish(70, 40, True)  # retires the first; with no grace it is due at once
+    left = _listing(s3_server, bucket, f"keep/versions/{first}/")
+    # the first's metadata and manifest are gone; its blocks 0 and 1 stay (inherited)
+    assert left and all("/c/" in k for k in left)
+    assert {int(k.split("/c/")[1].split("/")[0]) for k in left} == {0, 1}
+    cube = open_cube(url, storage_options=options)
+    assert cube.version == second
+    assert np.isfinite(cube.read("x", zones)).all()
+    publish(3, 0, False)  # a fresh version: nothing of the first two is used any more
+    assert _listing(s3_server, bucket, f"keep/versions/{first}/") == set()
+    assert _listing(s3_server, bucket, f"keep/versions/{second}/") == set()
