@@ -185,3 +185,33 @@ def test_a_flipped_byte_in_a_chunk_fails_its_checksum(tmp_path):
     assert is_checksum_error(err.value)
     other = ZONES[np.asarray(region) == 1]  # other chunks read as before
     np.testing.assert_array_equal(cube.read("v", other), _field(4)[:, np.asarray(region) == 1])
+
+
+def test_a_sharded_cube_lists_its_shards(tmp_path):
+    url = str(tmp_path / "sharded")
+    w = create_cube(
+        url,
+        cube_id="s",
+        times=DAYS[:4],
+        levels=[LEVEL],
+        variables={"v": {"units": "1"}},
+        chunks=ChunkShape(2, 8, 4),
+        shards=(2, 2, 2),  # one shard: 4 steps x 16 rows x 8 columns of a strip
+    )
+    _, region, _, _ = grid.zone_to_index(ZONES)
+    north = np.asarray(region) == 0
+    w.write("v", LEVEL, ZONES[north], _field(4)[:, north])
+    version = w.publish()
+    cube = open_cube(url)
+    np.testing.assert_array_equal(cube.read("v", ZONES[north]), _field(4)[:, north])
+    assert np.isnan(cube.read("v", ZONES[~north & (np.asarray(region) < 5)])).all()
+    # the objects on disk are one shard per strip that has data: strip 0 only
+    shards = {
+        f.split("/c/")[1] for f in _files(Path(url), version) if f.startswith("v/3/strips/c/")
+    }
+    assert shards == {"0/0/0/0"}
+    plan = cube.plan("v", ZONES)
+    for cr in plan.reads:
+        assert cube.meta.written(cr.array, cr.coords) is (
+            cr.array.endswith("strips") and cr.coords[1] == 0
+        )

@@ -157,11 +157,17 @@ class ArrayChunks:
 
 
 class ChunkLocator(Protocol):
-    """Anything that says which version stores a chunk of a version (None: unwritten)."""
+    """Anything that says which version stores a chunk of a version (None: unwritten).
+
+    ``coords`` are chunk coordinates; ``per_object`` gives the chunks per stored object
+    along each axis (empty: one chunk per object).
+    """
 
     def locate(self, array: str, coords: tuple[int, ...]) -> str | None: ...
 
     def knows(self, array: str) -> bool: ...
+
+    def per_object(self, array: str) -> tuple[int, ...]: ...
 
 
 @dataclass(frozen=True, eq=False)
@@ -205,20 +211,32 @@ class Manifest:
         k = entry.position(coords)
         return None if k < 0 else self.owners[int(entry.owner[k])]
 
-    def chunks(self, array: str) -> NDArray[np.int64]:
-        """Coordinates ``(m, ndim)`` of the chunks of ``array`` that hold data."""
+    def objects(self, array: str) -> NDArray[np.int64]:
+        """Coordinates ``(m, ndim)`` of the stored objects of ``array`` (chunks, or shards
+        of a sharded array) that hold data, as in their keys."""
         entry = self.arrays.get(array)
         if entry is None or entry.index.size == 0:
             return np.zeros((0, len(entry.grid) if entry else 0), dtype=np.int64)
-        per = np.asarray(entry.per_object or (1,) * len(entry.grid), dtype=np.int64)
-        coords = np.stack(np.unravel_index(entry.index, entry.grid), axis=1).astype(np.int64)
-        return coords * per[None, :]
+        return np.stack(np.unravel_index(entry.index, entry.grid), axis=1).astype(np.int64)
+
+    def chunks(self, array: str) -> NDArray[np.int64]:
+        """Coordinates ``(m, ndim)`` of the first chunk of each object that holds data
+        (the objects themselves unless the array is sharded)."""
+        entry = self.arrays.get(array)
+        objects = self.objects(array)
+        if entry is None or not entry.per_object:
+            return objects
+        return objects * np.asarray(entry.per_object, dtype=np.int64)[None, :]
+
+    def per_object(self, array: str) -> tuple[int, ...]:
+        entry = self.arrays.get(array)
+        return entry.per_object if entry is not None else ()
 
     def referenced(self) -> dict[str, set[str]]:
-        """Per owning version, the chunk keys (relative to that version) this one uses."""
+        """Per owning version, the object keys (relative to that version) this one uses."""
         out: dict[str, set[str]] = {}
         for array, entry in self.arrays.items():
-            coords = self.chunks(array).tolist()
+            coords = self.objects(array).tolist()
             for obj, k in zip(coords, entry.owner.tolist(), strict=True):
                 out.setdefault(self.owners[k], set()).add(f"{array}/{chunk_suffix(obj)}")
         return out
@@ -265,7 +283,7 @@ class ManifestBuilder:
     def __init__(self, version: str, grids: Mapping[str, tuple[int, ...]]) -> None:
         self.version = version
         self.grids = {k: tuple(int(x) for x in v) for k, v in grids.items()}
-        self.per_object: dict[str, tuple[int, ...]] = {}
+        self.objects_per: dict[str, tuple[int, ...]] = {}
         self._owners: list[str] = [version]
         self._chunks: dict[str, dict[int, int]] = {k: {} for k in self.grids}
 
@@ -284,7 +302,7 @@ class ManifestBuilder:
         return self._owners.index(owner)
 
     def _flat(self, array: str, coords: Iterable[int]) -> int:
-        per = self.per_object.get(array, ())
+        per = self.objects_per.get(array, ())
         probe = ArrayChunks(self.grids[array], np.zeros(0, np.int64), np.zeros(0, np.uint16), per)
         flat = probe.flat(coords)
         if flat < 0:
@@ -303,6 +321,9 @@ class ManifestBuilder:
     def knows(self, array: str) -> bool:
         return array in self.grids
 
+    def per_object(self, array: str) -> tuple[int, ...]:
+        return self.objects_per.get(array, ())
+
     def locate(self, array: str, coords: tuple[int, ...]) -> str | None:
         chunks = self._chunks.get(array)
         if chunks is None:
@@ -319,7 +340,7 @@ class ManifestBuilder:
         for array, chunks in self._chunks.items():
             index = np.fromiter(sorted(chunks), dtype=np.int64, count=len(chunks))
             owner = remap[np.array([chunks[i] for i in index.tolist()], dtype=np.int64)]
-            per = self.per_object.get(array, ())
+            per = self.objects_per.get(array, ())
             arrays[array] = ArrayChunks(self.grids[array], index, owner.astype(np.uint16), per)
         owners = tuple(self._owners[k] for k in used)
         return Manifest(self.version, owners, arrays, dict(info or {}))
@@ -352,7 +373,9 @@ class ResolvingStore(WrapperStore[Store]):
         if parsed is None or not self.locator.knows(parsed[0]):
             return key, False
         array, coords = parsed
-        owner = self.locator.locate(array, coords)
+        per = self.locator.per_object(array)
+        first = tuple(c * p for c, p in zip(coords, per, strict=True)) if per else coords
+        owner = self.locator.locate(array, first)
         if owner is None:
             return None, False
         return f"{self._versions}/{owner}/{array}/{chunk_suffix(coords)}", True

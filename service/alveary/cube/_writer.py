@@ -398,7 +398,7 @@ class CubeWriter:
         if self.shards is not None:
             for array in self._builder.grids:
                 if array.endswith("/strips"):
-                    self._builder.per_object[array] = (self.shards[0], 1, *self.shards[1:])
+                    self._builder.objects_per[array] = (self.shards[0], 1, *self.shards[1:])
         if self._base is not None:
             self._builder.inherit(self._base.manifest)
 
@@ -684,11 +684,18 @@ class CubeWriter:
                 store=self._store, path=f"{root}/{path}", mode="r+", zarr_format=3
             )
         sem = asyncio.Semaphore(16)
+        # chunks of one shard are read, changed and written back one after the other
+        locks: dict[tuple[str, tuple[int, ...]], asyncio.Lock] = {}
+
+        def lock(cr: ChunkRead) -> asyncio.Lock:
+            per = self._builder.per_object(cr.array) or (1,) * len(cr.coords)
+            obj = tuple(c // p for c, p in zip(cr.coords, per, strict=True))
+            return locks.setdefault((cr.array, obj), asyncio.Lock())
 
         async def one(cr: ChunkRead) -> None:
             arr = arrays[cr.array]
-            owner = self._builder.locate(cr.array, cr.coords)
-            async with sem:
+            async with lock(cr), sem:
+                owner = self._builder.locate(cr.array, cr.coords)
                 if owner is not None:
                     src = AsyncArray(arr.metadata, StorePath(reading, f"{root}/{cr.array}"))
                     cur = info.decode(np.asarray(await src.getitem(cr.selection)))
@@ -696,7 +703,9 @@ class CubeWriter:
                     cur = np.full(tuple(s.stop - s.start for s in cr.selection), np.nan)
                 where: tuple[Any, ...] = (cr.in_time, *cr.cells)
                 cur[where] = vals[cr.out_time][:, cr.columns]
-                if np.isfinite(cur).any():
+                sharded = bool(self._builder.per_object(cr.array))
+                if np.isfinite(cur).any() or (sharded and owner is not None):
+                    # (a chunk emptied inside a shard stays listed with its shard)
                     await arr.setitem(cr.selection, info.encode(cur))
                     self._builder.add(cr.array, cr.coords)
                 elif owner is not None:
