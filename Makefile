@@ -3,8 +3,11 @@ PYTHON ?= python3
 VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
+# Quick feedback: no servers (grid, cube arithmetic, query plans, encoders, doctests).
+FAST   := tests/grid tests/cube/test_cube_layout.py tests/query tests/api \
+          service/alveary/grid service/alveary/cube service/alveary/query service/alveary/api
 
-.PHONY: demo test lint bench clean venv
+.PHONY: demo test test-fast lint bench clean venv
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -18,19 +21,24 @@ venv: $(STAMP)
 demo: $(STAMP)
 	$(BIN)/alveary demo
 
-## Lint, then run the whole suite (starts its own S3-protocol server and uvicorn on 127.0.0.1).
-test: $(STAMP)
-	$(BIN)/ruff check service tests
-	$(BIN)/ruff format --check service tests
-	$(BIN)/python -m pytest -q
-
+## Style, the layer contract (import-linter) and the types (mypy).
 lint: $(STAMP)
 	$(BIN)/ruff check service tests
 	$(BIN)/ruff format --check service tests
+	$(BIN)/lint-imports
+	$(BIN)/mypy
+
+## Lint, then the whole suite (starts its own S3-protocol server and uvicorn on 127.0.0.1).
+test: lint
+	$(BIN)/python -m pytest -q
+
+## The tests that start no server, for quick feedback while working.
+test-fast: $(STAMP)
+	$(BIN)/python -m pytest -q -m "not server" $(FAST)
 
 ## Benchmarks (not part of make test): prints ratios measured in this run.
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/run.py
 
 clean:
-	rm -rf $(VENV) .pytest_cache .hypothesis build *.egg-info
+	rm -rf $(VENV) .pytest_cache .hypothesis .mypy_cache .import_linter_cache build *.egg-info

@@ -14,24 +14,29 @@ built-in exception a caller would expect, so ``except ValueError`` keeps working
     ├── ChunkDecodeError (OSError)         a stored chunk cannot be decoded
     └── DeadlineExceeded (TimeoutError)    a request ran past its deadline
 
-The HTTP layer maps this hierarchy to status codes in exactly one table.
+:data:`HTTP_STATUS` is the one table from this hierarchy to HTTP status codes: the service
+answers with it and the client raises with it.
 """
 
 from __future__ import annotations
 
-from typing import Any
+from typing import Any, NamedTuple
 
 __all__ = [
+    "HTTP_STATUS",
     "AlvearyError",
     "ChunkDecodeError",
     "CubeFormatError",
     "DeadlineExceeded",
     "GridError",
+    "HttpStatus",
     "IngestError",
     "InvalidInput",
     "LimitExceeded",
     "NotFound",
     "StoreUnavailable",
+    "error_for_status",
+    "http_status",
 ]
 
 
@@ -119,3 +124,51 @@ class ChunkDecodeError(AlvearyError, OSError):
 
 class DeadlineExceeded(AlvearyError, TimeoutError):
     """A request ran past its deadline."""
+
+
+class HttpStatus(NamedTuple):
+    """One row of :data:`HTTP_STATUS`."""
+
+    error: type[AlvearyError]
+    status: int
+    title: str
+
+
+#: The one table between the error hierarchy and HTTP status codes, with the problem
+#: title. The first row whose class matches wins, so subclasses come before their bases.
+HTTP_STATUS: tuple[HttpStatus, ...] = (
+    HttpStatus(LimitExceeded, 413, "Request over a configured limit"),
+    HttpStatus(InvalidInput, 422, "Invalid parameter"),
+    HttpStatus(NotFound, 404, "Not found"),
+    HttpStatus(StoreUnavailable, 503, "Store unavailable"),
+    HttpStatus(ChunkDecodeError, 502, "Stored data cannot be decoded"),
+    HttpStatus(DeadlineExceeded, 504, "Request deadline exceeded"),
+    HttpStatus(AlvearyError, 500, "Internal error"),
+)
+
+
+def http_status(error: BaseException | type[BaseException]) -> HttpStatus:
+    """The row for an error (or error class); anything unknown is a 500.
+
+    >>> http_status(NotFound("cube", "x"))
+    HttpStatus(error=<class 'alveary._errors.NotFound'>, status=404, title='Not found')
+    >>> http_status(GridError("level", 99)).status
+    422
+    """
+    cls = error if isinstance(error, type) else type(error)
+    for row in HTTP_STATUS:
+        if issubclass(cls, row.error):
+            return row
+    return HTTP_STATUS[-1]
+
+
+def error_for_status(status: int) -> type[AlvearyError]:
+    """The error class an HTTP status stands for (the most general one listed).
+
+    >>> error_for_status(413).__name__, error_for_status(418).__name__
+    ('LimitExceeded', 'AlvearyError')
+    """
+    for row in HTTP_STATUS:
+        if row.status == status:
+            return row.error
+    return AlvearyError

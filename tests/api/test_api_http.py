@@ -18,6 +18,8 @@ from support.server import ServiceProcess
 
 PROBLEM = "application/problem+json"
 
+pytestmark = pytest.mark.server  # every test here talks to a real service process
+
 
 @pytest.fixture(scope="module")
 def http(service):
@@ -311,36 +313,67 @@ def test_undecodable_chunk_is_502(s3_server):
         )
 
 
-def test_metrics_count_requests_and_store_reads(http):
-    http.get("/cubes/analytic/point", params={"lat": 3, "lon": 4})
-    http.get("/cubes/analytic/point", params={"lat": 3, "lon": 4})
-    http.get("/healthz")
-    r = http.get("/metrics")
+def test_metrics_count_requests_and_store_reads(s3_server):
+    # A cube and a service of its own, so that every counter starts at zero with this
+    # test and no other process reads the bucket; the store traffic is judged by the S3
+    # server's log and the stored objects' sizes.
+    url, options = f"s3://{s3_server.create_bucket()}/metrics", s3_server.storage_options()
+    build_cube(url, options, levels=(3,))
+    cubes = [{"id": "analytic", "url": url, "storage_options": options}]
+    point = {"lat": 3, "lon": 4}
+    mark = s3_server.mark()
+    with (
+        ServiceProcess(cubes, options={"refresh_interval": 3600}) as proc,
+        httpx.Client(base_url=proc.url, timeout=30) as c,
+    ):
+        assert c.get("/cubes/analytic/point", params=point).status_code == 200  # computed
+        assert c.get("/cubes/analytic/point", params=point).status_code == 200  # answer cache
+        csv = c.get("/cubes/analytic/point", params={**point, "f": "csv"})  # chunk cache
+        assert csv.status_code == 200
+        assert c.get("/").status_code == 200
+        r = c.get("/metrics")
+        logged = s3_server.requests(since=mark, bucket=url)
     assert r.status_code == 200 and r.headers["content-type"].startswith("text/plain")
-    text = r.text
     # Prometheus text exposition format, parsed by prometheus-client's own parser.
     from prometheus_client.parser import text_string_to_metric_families
 
-    families = {f.name: f for f in text_string_to_metric_families(text)}
+    families = {f.name: f for f in text_string_to_metric_families(r.text)}
+
+    def value(family: str, sample: str, **labels: str) -> float:
+        return next(
+            s.value
+            for s in families[family].samples
+            if s.name == sample and all(s.labels.get(k) == v for k, v in labels.items())
+        )
+
     requests = {
         (s.labels["operation"], s.labels["status"]): s.value
         for s in families["alveary_requests"].samples
         if s.name == "alveary_requests_total"
     }
-    assert requests[("query_point", "200")] >= 2 and requests[("health", "200")] >= 1
-    assert any(
-        s.labels.get("operation") == "query_point"
-        for s in families["alveary_request_seconds"].samples
-    )
-    reads = [
-        s.value
-        for s in families["alveary_store_chunk_reads"].samples
-        if s.labels.get("cube") == "analytic"
+    assert requests[("query_point", "200")] == 3 and requests[("landing", "200")] == 1
+    assert value("alveary_request_seconds", "alveary_request_seconds_count", operation="landing")
+    chunk_gets = [
+        q for q in logged if q.is_object_get and "/c/" in q.path and "/time/" not in q.path
     ]
-    assert reads and reads[0] > 0
-    assert next(s.value for s in families["alveary_store_bytes_read"].samples) > 0
-    assert next(s.value for s in families["alveary_chunk_cache_hits"].samples) >= 1
-    assert next(s.value for s in families["alveary_chunk_cache_misses"].samples) >= 1
+    assert chunk_gets and len({q.path for q in chunk_gets}) == len(chunk_gets)
+    assert value(
+        "alveary_store_chunk_reads", "alveary_store_chunk_reads_total", cube="analytic"
+    ) == (len(chunk_gets))
+    # Bytes: the stored size of every object the service fetched (metadata and chunks).
+    client, bucket = s3_server.client(), url.removeprefix("s3://").split("/")[0]
+    fetched = [q.path.split("/", 2)[2] for q in logged if q.is_object_get and q.status == 200]
+    stored = sum(client.head_object(Bucket=bucket, Key=k)["ContentLength"] for k in fetched)
+    assert value("alveary_store_bytes_read", "alveary_store_bytes_read_total", cube="analytic") == (
+        stored
+    )
+    # Chunk cache: the first answer missed every chunk, the CSV one hit every chunk.
+    n = len(chunk_gets)
+    assert value("alveary_chunk_cache_misses", "alveary_chunk_cache_misses_total") == n
+    assert value("alveary_chunk_cache_hits", "alveary_chunk_cache_hits_total") == n
+    # Answer cache: the JSON repeat was served from it; JSON and CSV were computed.
+    assert value("alveary_answer_cache_hits", "alveary_answer_cache_hits_total") == 1
+    assert value("alveary_answer_cache_misses", "alveary_answer_cache_misses_total") == 2
 
 
 def test_cors_allow_list(analytic_store):

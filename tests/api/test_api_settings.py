@@ -8,9 +8,7 @@ import tomllib
 import pytest
 
 from alveary import InvalidInput
-from alveary.api import Settings
-from alveary.api._cli import _settings
-from alveary.api._settings import scan_store
+from alveary.api import Settings, load_settings, scan_store
 from support.server import toml_cubes
 
 
@@ -38,28 +36,33 @@ def test_toml_cube_list(tmp_path):
 
 
 @pytest.mark.parametrize(
-    "text",
+    ("text", "parameter", "allowed"),
     [
-        "",
-        "[[cubes]]\nurl = 'x'\n",
-        "[[cubes]]\nid = 'a b'\nurl = 'x'\n",
-        "[[cubes]]\nid = 'a'\nurl = 'x'\n[[cubes]]\nid = 'a'\nurl = 'y'\n",
-        "[[cubes]\n",
+        ("", "config", "at least one [[cubes]] table"),
+        ("[[cubes]]\nurl = 'x'\n", "id", "required"),
+        ("[[cubes]]\nid = 'a b'\nurl = 'x'\n", "cube_id", "1-64 characters"),
+        ("[[cubes]]\nid = 'a'\nurl = 'x'\n[[cubes]]\nid = 'a'\nurl = 'y'\n", "config", "unique"),
+        ("[[cubes]\n", "config", "valid TOML"),
     ],
 )
-def test_bad_cube_files_stop_start_up(tmp_path, text):
+def test_bad_cube_files_stop_start_up(tmp_path, text, parameter, allowed):
     path = tmp_path / "cubes.toml"
     path.write_text(text)
-    with pytest.raises((InvalidInput, ValueError)):
-        Settings(config=path)
+    # The standard library's TOML reader agrees on which files are not TOML at all.
+    if allowed == "valid TOML":
+        with pytest.raises(tomllib.TOMLDecodeError):
+            tomllib.loads(text)
+    with pytest.raises(InvalidInput) as info:
+        load_settings({"config": path})
+    assert info.value.parameter == parameter and allowed in info.value.allowed
 
 
 def test_bad_option_is_named():
     with pytest.raises(InvalidInput) as info:
-        _settings({"port": 70000})
+        load_settings({"port": 70000})
     assert info.value.parameter == "port"
     with pytest.raises(InvalidInput) as info:
-        _settings({"config": "/nonexistent/cubes.toml"})
+        load_settings({"config": "/nonexistent/cubes.toml"})
     assert info.value.parameter == "config"
 
 

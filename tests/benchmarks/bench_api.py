@@ -26,7 +26,7 @@ import httpx
 import numpy as np
 
 from alveary import grid
-from alveary.cube import create_cube, open_cube
+from alveary.cube import create_cube
 from alveary.query import (
     Catalog,
     CubeSource,
@@ -137,9 +137,7 @@ def main() -> None:
 
 
 def plan_chunks(url: str, options: dict, query) -> int:
-    cat = Catalog(
-        [CubeSource("bench", url, storage_options=options)], opener=lambda u, o: open_cube(u, o)
-    )
+    cat = Catalog([CubeSource("bench", url, storage_options=options)])
     cat.open_all()
     return make_plan(resolve(cat, "bench", query), Limits(max_zones=150_000)).chunk_count
 

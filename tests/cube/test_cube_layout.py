@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import asyncio
-
 import numpy as np
 import pytest
 import zarr
@@ -123,11 +121,3 @@ def test_default_chunk_shape_clips_to_the_strip():
     assert default_chunk_shape(0, 5) == ChunkShape(5, 2, 1)
     assert default_chunk_shape(10, 1000) == ChunkShape(32, 64, 64)
     assert LevelLayout(10, 1000, default_chunk_shape(10, 1000)).chunk_grid == (32, 5, 32, 16)
-
-
-def test_no_io_in_planning():
-    # Planning runs without an event loop or store at all.
-    lay = LevelLayout(5, 10, default_chunk_shape(5, 10))
-    with pytest.raises(RuntimeError):
-        asyncio.get_running_loop()
-    assert len(plan_cells(lay, "v", [0], [0], [0], slice(0, 10), 4)) == 1

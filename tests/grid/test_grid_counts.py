@@ -21,6 +21,8 @@ CONTRACT_NAMES = [
     "PENTAGON_SHARE",
     "R_AUTHALIC",
     "all_zones",
+    "disk_union",
+    "disk_windows",
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",

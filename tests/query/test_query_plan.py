@@ -1,8 +1,10 @@
-"""Resolution, planning and execution over the in-memory stand-in cube.
+"""Resolution, planning and execution over real cubes on the in-memory store.
 
 Zone sets are checked against independent computations: the hexagon count of a k-disk
 (3k(k+1) + 1, common practice for hexagonal lattices), pyproj.Geod distances for radius
-queries, and the analytic field evaluated at the zone centres for values.
+queries, shapely point-in-polygon for the zone under a point and for the centres inside
+an area, and the published area of the WGS84 ellipsoid. Values are judged against what
+was written into the cube for each zone id.
 """
 
 from __future__ import annotations
@@ -11,13 +13,12 @@ import asyncio
 
 import numpy as np
 import pytest
+import shapely
 from pyproj import Geod
 
 from alveary import InvalidInput, LimitExceeded, NotFound, grid
 from alveary.query import (
     BboxQuery,
-    Catalog,
-    CubeSource,
     DiskQuery,
     Limits,
     PointQuery,
@@ -32,21 +33,22 @@ from alveary.query import (
     parse_polygon,
     resolve,
 )
-from support.memcube import MemoryCube, field
+from support.memcube import memory_cube
 
 GEOD = Geod(ellps="WGS84")
+# The WGS84 ellipsoid's surface area, 510 065 621.724 km² (a published figure); an
+# equal-area grid's hexagon at level r holds 1 / (10 * 4**r) of it.
+WGS84_AREA_M2 = 510_065_621.724e6
 
 
-@pytest.fixture
-def memory_cube():
-    return MemoryCube()
+@pytest.fixture(scope="module")
+def mem():
+    return memory_cube()
 
 
-@pytest.fixture
-def cat(memory_cube):
-    c = Catalog([CubeSource("mem", "memory://mem")], opener=lambda url, opts: memory_cube)
-    c.open_all()
-    return c
+@pytest.fixture(scope="module")
+def cat(mem):
+    return mem.catalog()
 
 
 def run(plan):
@@ -66,28 +68,54 @@ def test_resolve_defaults_and_errors(cat):
     assert info.value.parameter == "vars" and info.value.value == "rain"
 
 
-def test_key_is_normalised(cat, memory_cube):
-    a = resolve(cat, "mem", PointQuery(1.0, 2.0, Selection(time=parse_datetime("2024-01-02/.."))))
+def test_key_is_normalised_and_names_the_version():
+    own = memory_cube(levels=(3,), ntimes=4)
+    cat = own.catalog()
+    query = PointQuery(1.0, 2.0, Selection(time=parse_datetime("2024-01-02/..")))
+    a = resolve(cat, "mem", query)
     b = resolve(
         cat,
         "mem",
         PointQuery(1.0, 2.0, Selection(time=parse_datetime("2024-01-01T12:00:00Z/2030-01-01"))),
     )
     assert a.key == b.key  # same time steps selected
-    memory_cube.version = "v2"
-    c = resolve(cat, "mem", PointQuery(1.0, 2.0, Selection(time=parse_datetime("2024-01-02/.."))))
-    assert c.key != a.key
+    own.publish(offset=1.0)
+    assert cat.refresh() == {"mem": True}
+    c = resolve(cat, "mem", query)
+    assert c.key != a.key and c.version == own.versions[-1] != a.version
 
 
-def test_point_values_are_the_field_at_the_centre(cat):
+def test_a_plan_reads_the_version_it_was_made_from():
+    # A new version is published and picked up between planning and execution: the
+    # plan still reads the old version, every value of it (nothing mixed).
+    own = memory_cube(levels=(3,), ntimes=4)
+    cat = own.catalog()
+    query = PointQuery(10.0, 20.0, Selection(time=parse_datetime("../..")))
+    old = make_plan(resolve(cat, "mem", query), Limits())
+    old_written = dict(own.written[("f", 3)])
+    own.publish(offset=100.0)
+    assert cat.refresh() == {"mem": True}
+    new = make_plan(resolve(cat, "mem", query), Limits())
+    zone = int(old.zones[0])
+    before, after = run(old), run(new)
+    assert before.version == own.versions[0] and after.version == own.versions[1]
+    np.testing.assert_array_equal(before.values["f"][:, 0], old_written[zone])
+    np.testing.assert_array_equal(after.values["f"][:, 0], own.written[("f", 3)][zone])
+    np.testing.assert_allclose(after.values["f"] - before.values["f"], 100.0)
+
+
+def test_point_answers_the_zone_holding_the_point(cat, mem):
     sel = Selection(time=parse_datetime("../.."))
     res = run(make_plan(resolve(cat, "mem", PointQuery(-33.9, 151.2, sel)), Limits()))
-    zone = grid.point_to_zone(-33.9, 151.2, 5)
-    assert res.zones.tolist() == [int(zone)]
-    lat, lon = grid.zone_to_point(zone)
-    expected = field(lat, lon, np.arange(4.0))
-    np.testing.assert_allclose(res.values["f"][:, 0], expected, rtol=1e-12)
-    np.testing.assert_allclose(res.values["g"][:, 0], 2 * expected, rtol=1e-12)
+    assert res.zones.size == 1
+    zone = int(res.zones[0])
+    # Reference: shapely point-in-polygon on the zone's outline (lon, lat).
+    outline = np.asarray(grid.zone_boundary(np.uint64(zone), face_edges=True)).reshape(-1, 2)
+    outline = outline[~np.isnan(outline[:, 0])]
+    assert shapely.Polygon(outline[:, ::-1]).contains(shapely.Point(151.2, -33.9))
+    assert int(grid.zone_level(np.uint64(zone))) == 5  # the cube's finest level
+    np.testing.assert_array_equal(res.values["f"][:, 0], mem.written[("f", 5)][zone])
+    np.testing.assert_array_equal(res.values["g"][:, 0], mem.written[("g", 5)][zone])
 
 
 def test_disk_counts_and_steps(cat):
@@ -126,9 +154,7 @@ def test_radius_distances_against_geod(cat):
 
 
 def test_nearest_with_data_skips_gaps():
-    cube = MemoryCube(nodata_below_lat=44.9)
-    c = Catalog([CubeSource("mem", "memory://mem")], opener=lambda url, opts: cube)
-    c.open_all()
+    c = memory_cube(levels=(5,), ntimes=2, nodata_below_lat=44.9).catalog()
     res = run(
         make_plan(resolve(c, "mem", RadiusQuery(44.9, 7.0, 600_000.0, nearest=True)), Limits())
     )
@@ -143,32 +169,42 @@ def test_nearest_with_data_skips_gaps():
     assert res.zones[0] == full.zones[np.argmin(d)]
 
 
-def test_points_repeat_zones_and_read_each_once(cat, memory_cube):
+def test_points_repeat_zones_and_read_each_once(cat, mem):
     lat = np.array([10.0, 10.0001, -5.0])
     lon = np.array([20.0, 20.0001, 3.0])
     plan = make_plan(resolve(cat, "mem", PointsQuery(lat, lon)), Limits())
     assert plan.read_zones.size == 2 and plan.zones.size == 3
+    assert all(read.nzones == 2 for read in plan.reads.values())  # each zone read once
     res = run(plan)
     assert res.extra["point"].tolist() == [0, 1, 2]
-    assert res.values["f"][0, 0] == res.values["f"][0, 1]
-    assert all(n == 2 for _, n, _, _ in memory_cube.reads)
+    for row, zone in enumerate(res.zones.tolist()):
+        assert res.values["f"][0, row] == mem.written[("f", 5)][zone][-1]
+    assert res.zones[0] == res.zones[1] != res.zones[2]
 
 
-def test_polygon_stats_are_area_means(cat):
-    area = parse_polygon(
-        {"type": "Polygon", "coordinates": [[[0, 0], [30, 0], [30, 30], [0, 30], [0, 0]]]}, 100
-    )
+def test_polygon_stats_are_area_means(cat, mem):
+    square = [[0, 0], [30, 0], [30, 30], [0, 30], [0, 0]]
+    area = parse_polygon({"type": "Polygon", "coordinates": [square]}, 100)
     plan = make_plan(resolve(cat, "mem", PolygonQuery(area, ("mean", "count"))), Limits())
     res = run(plan)
     assert isinstance(res, StatsResult)
-    lat, lon = grid.zone_to_point(plan.read_zones)
-    expected = field(lat, lon, np.full(lat.size, 3.0)).mean()  # equal-area: plain mean
+    # Reference: brute force over every zone of the level, centres tested by shapely
+    # (on the edge counts as inside), values as written; no pentagon lies in the square,
+    # so the area mean is the plain mean.
+    every = grid.all_zones(5)
+    clat, clon = grid.zone_to_point(every)
+    inside = every[shapely.intersects_xy(shapely.Polygon(square), clon, clat)]
+    assert not grid.is_pentagon(inside).any()
+    expected = np.mean([mem.written[("f", 5)][z][-1] for z in inside.tolist()])
+    assert res.zone_count == inside.size
     assert res.stats["f"]["mean"][0] == pytest.approx(expected, rel=1e-12)
-    assert res.stats["f"]["count"][0] == plan.read_zones.size
-    assert res.area_m2 == pytest.approx(plan.read_zones.size * grid.zone_area(5))
+    assert res.stats["f"]["count"][0] == inside.size
+    assert res.area_m2 == pytest.approx(inside.size * WGS84_AREA_M2 / (10 * 4**5), rel=1e-9)
 
 
-def test_limits_refuse_before_any_read(cat, memory_cube):
+def test_limits_refuse_before_any_read(cat):
+    stats = cat.get("mem").stats
+    before = stats.snapshot()
     small = Limits(max_zones=50, max_k=3, max_points=2, max_cells=20)
     cases = [
         (DiskQuery(k=4, lat=0.0, lon=0.0), "k"),
@@ -194,7 +230,7 @@ def test_limits_refuse_before_any_read(cat, memory_cube):
             small,
         )
     assert info.value.limit == "time steps × zones" and info.value.requested == 4 * 37
-    assert memory_cube.reads == []
+    assert stats.snapshot() == before  # not one request to the store
 
 
 def test_huge_polygon_is_refused_from_its_area(cat):

@@ -21,16 +21,4 @@ def s3_server():
         server.stop()
 
 
-@pytest.fixture(scope="session")
-def s3_storage_options(s3_server):
-    """``storage_options`` for s3fs pointing at :func:`s3_server` (endpoint, keys)."""
-    return s3_server.storage_options()
-
-
-@pytest.fixture
-def s3_bucket(s3_server):
-    """A fresh, empty bucket on :func:`s3_server`, as the URL ``s3://<name>``."""
-    return "s3://" + s3_server.create_bucket()
-
-
 from support.service_fixtures import *  # noqa: E402, F403  (HTTP service fixtures)

@@ -7,10 +7,11 @@ and listing requests a read really sent over the wire.
 
 Usage in tests (fixtures in ``support.fixtures``)::
 
-    def test_x(s3_server, s3_bucket):        # s3_bucket is "s3://<fresh bucket>"
+    def test_x(s3_server):
+        url = "s3://" + s3_server.create_bucket() + "/cube"   # a fresh bucket
         mark = s3_server.mark()
         ...                                  # read through s3fs
-        reqs = s3_server.requests(since=mark)
+        reqs = s3_server.requests(since=mark, bucket=url)
 """
 
 from __future__ import annotations

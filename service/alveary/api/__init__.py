@@ -1,10 +1,24 @@
 """The HTTP layer: a FastAPI application over the query layer.
 
-Build it with :func:`create_app` from validated :class:`Settings`; ``alveary serve`` runs
-it under uvicorn.
+Build it with :func:`create_app` from validated :class:`Settings` (:func:`load_settings`
+names the setting at fault); the ``alveary serve`` command runs it under uvicorn.
 """
 
 from alveary.api._app import create_app, create_app_from_env
-from alveary.api._settings import CubeConfig, Settings
+from alveary.api._settings import (
+    CubeConfig,
+    Settings,
+    default_store,
+    load_settings,
+    scan_store,
+)
 
-__all__ = ["CubeConfig", "Settings", "create_app", "create_app_from_env"]
+__all__ = [
+    "CubeConfig",
+    "Settings",
+    "create_app",
+    "create_app_from_env",
+    "default_store",
+    "load_settings",
+    "scan_store",
+]

@@ -4,16 +4,17 @@ from __future__ import annotations
 
 import contextlib
 import gc
-from collections.abc import AsyncIterator, Callable
-from typing import Any
+from collections.abc import AsyncIterator
 
 from fastapi import FastAPI
 from fastapi.middleware.cors import CORSMiddleware
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
+from alveary._errors import LimitExceeded
 from alveary.api._answers import AnswerFrontMiddleware
 from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_openapi
-from alveary.api._problem import install_handlers, problem_response
+from alveary.api._problem import domain_response, install_handlers
 from alveary.api._routes_cubes import router as cubes_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
@@ -31,11 +32,11 @@ class _BodyTooLarge(Exception):
 class BodyLimitMiddleware:
     """Refuse request bodies over ``max_bytes`` with 413 problem+json, before parsing."""
 
-    def __init__(self, app: Any, max_bytes: int) -> None:
+    def __init__(self, app: ASGIApp, max_bytes: int) -> None:
         self.app = app
         self.max_bytes = max_bytes
 
-    async def __call__(self, scope: dict, receive: Callable, send: Callable) -> None:
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return
@@ -51,7 +52,7 @@ class BodyLimitMiddleware:
         seen = 0
         started = False
 
-        async def limited() -> dict:
+        async def limited() -> Message:
             nonlocal seen
             message = await receive()
             if message["type"] == "http.request":
@@ -60,7 +61,7 @@ class BodyLimitMiddleware:
                     raise _BodyTooLarge
             return message
 
-        async def tracking_send(message: dict) -> None:
+        async def tracking_send(message: Message) -> None:
             nonlocal started
             if message["type"] == "http.response.start":
                 started = True
@@ -72,16 +73,9 @@ class BodyLimitMiddleware:
             if not started:
                 await self._refuse(scope, receive, send, seen)
 
-    async def _refuse(self, scope: dict, receive: Callable, send: Callable, size: int) -> None:
-        response = problem_response(
-            413,
-            "Request over a configured limit",
-            f"request body: requested {size} bytes, the limit is {self.max_bytes}",
-            limit="request body bytes",
-            requested=size,
-            maximum=self.max_bytes,
-        )
-        await response(scope, receive, send)
+    async def _refuse(self, scope: Scope, receive: Receive, send: Send, size: int) -> None:
+        error = LimitExceeded("request body bytes", size, self.max_bytes)
+        await domain_response(error, retry_after=0)(scope, receive, send)
 
 
 def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
@@ -121,6 +115,12 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.include_router(cubes_router)
     app.include_router(zones_router)
     install_openapi(app)
+    _add_middleware(app, service, settings)
+    return app
+
+
+def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
+    """The ASGI layers around the routes; the last added runs first (metrics outermost)."""
     app.add_middleware(
         AnswerFrontMiddleware,
         cache=service.answers,
@@ -138,7 +138,6 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
         )
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(MetricsMiddleware, metrics=service.metrics)
-    return app
 
 
 def create_app_from_env() -> FastAPI:

@@ -180,8 +180,8 @@ def _zone_table(result: ZoneResult) -> pa.Table:
     for name, values in result.extra.items():
         arr = pa.array(np.repeat(values, t))
         cols[name] = arr
-        meta = {"units": "m"} if name == "distance_m" else None
-        fields.append(pa.field(name, arr.type, metadata=meta))
+        units = {"units": "m"} if name == "distance_m" else None
+        fields.append(pa.field(name, arr.type, metadata=units))
     schema = pa.schema(fields, metadata=_schema_meta(result))
     return pa.Table.from_arrays(list(cols.values()), schema=schema)
 
@@ -221,7 +221,7 @@ def _arrow(table: pa.Table) -> bytes:
     sink = pa.BufferOutputStream()
     with pa.ipc.new_stream(sink, table.schema) as writer:
         writer.write_table(table, max_chunksize=65_536)
-    return sink.getvalue().to_pybytes()
+    return bytes(sink.getvalue().to_pybytes())
 
 
 def _csv(table: pa.Table) -> bytes:

@@ -24,19 +24,35 @@ from fastapi import FastAPI
 from fastapi.openapi.utils import get_openapi
 
 from alveary import __version__
+from alveary._errors import (
+    AlvearyError,
+    ChunkDecodeError,
+    DeadlineExceeded,
+    InvalidInput,
+    LimitExceeded,
+    NotFound,
+    StoreUnavailable,
+    http_status,
+)
 from alveary.api._schemas import PointsBody, Problem
 
 __all__ = ["examples_dir", "install_openapi", "load_examples"]
 
-_PROBLEMS = {
-    "404": "Unknown cube or zone.",
-    "413": "Over a configured limit (zones, k, vertices, points, time steps × zones, body).",
-    "422": "Invalid parameter: the detail names it and the allowed range.",
-    "502": "A stored chunk cannot be decoded.",
-    "503": "The store cannot be reached (Retry-After says when to try again).",
-    "504": "The request ran past its deadline.",
-}
-_GRID_PROBLEMS = ("404", "422")
+# The problems each operation documents, by error class; the status comes from the one
+# table (alveary._errors.HTTP_STATUS).
+_PROBLEM_TEXT: tuple[tuple[type[AlvearyError], str], ...] = (
+    (NotFound, "Unknown cube or zone."),
+    (
+        LimitExceeded,
+        "Over a configured limit (zones, k, vertices, points, time steps × zones, body).",
+    ),
+    (InvalidInput, "Invalid parameter: the detail names it and the allowed range."),
+    (ChunkDecodeError, "A stored chunk cannot be decoded."),
+    (StoreUnavailable, "The store cannot be reached (Retry-After says when to try again)."),
+    (DeadlineExceeded, "The request ran past its deadline."),
+)
+_PROBLEMS = {str(http_status(cls).status): text for cls, text in _PROBLEM_TEXT}
+_GRID_PROBLEMS = tuple(str(http_status(cls).status) for cls in (NotFound, InvalidInput))
 _META_OPS = {"landing", "health", "ready", "metrics"}
 
 DESCRIPTION = """\

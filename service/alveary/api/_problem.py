@@ -1,4 +1,5 @@
-"""Errors as application/problem+json (RFC 9457), and the one table from errors to status.
+"""Errors as application/problem+json (RFC 9457), with status and title from the one table
+(:data:`alveary._errors.HTTP_STATUS`).
 
 Every error a client sees is a problem document with ``type``, ``title``, ``status`` and
 ``detail``; input errors also name the ``parameter``, the offending ``value`` and what is
@@ -9,6 +10,7 @@ Nothing else is passed on: no stack trace, no internal path, no store URL or cre
 from __future__ import annotations
 
 import logging
+from http import HTTPStatus
 from typing import Any
 
 import orjson
@@ -17,7 +19,9 @@ from fastapi.exceptions import RequestValidationError
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import Response
 
+from alveary import grid
 from alveary._errors import (
+    HTTP_STATUS,
     AlvearyError,
     ChunkDecodeError,
     DeadlineExceeded,
@@ -25,37 +29,14 @@ from alveary._errors import (
     LimitExceeded,
     NotFound,
     StoreUnavailable,
+    http_status,
 )
 
-__all__ = ["PROBLEM", "STATUS", "install_handlers", "problem_response", "status_for"]
+__all__ = ["PROBLEM", "domain_response", "install_handlers", "problem_response"]
 
 log = logging.getLogger("alveary.api")
 
 PROBLEM = "application/problem+json"
-
-#: The one table from the domain error hierarchy to HTTP status and title. The first
-#: entry that matches (isinstance) wins, so subclasses come before their bases.
-STATUS: tuple[tuple[type[BaseException], int, str], ...] = (
-    (LimitExceeded, 413, "Request over a configured limit"),
-    (InvalidInput, 422, "Invalid parameter"),
-    (NotFound, 404, "Not found"),
-    (StoreUnavailable, 503, "Store unavailable"),
-    (ChunkDecodeError, 502, "Stored data cannot be decoded"),
-    (DeadlineExceeded, 504, "Request deadline exceeded"),
-    (AlvearyError, 500, "Internal error"),
-)
-
-
-def status_for(exc: BaseException) -> tuple[int, str]:
-    """HTTP status and title for a domain error.
-
-    >>> status_for(NotFound("cube", "x"))
-    (404, 'Not found')
-    """
-    for cls, status, title in STATUS:
-        if isinstance(exc, cls):
-            return status, title
-    return 500, "Internal error"
 
 
 def _jsonable(value: Any) -> Any:
@@ -86,9 +67,18 @@ def problem_response(
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 
 
-def _domain(exc: AlvearyError, retry_after: int) -> Response:
-    status, title = status_for(exc)
-    headers = {"Retry-After": str(retry_after)} if status == 503 else None
+# What a client is told of store and decode errors (they may carry URLs or paths).
+_PUBLIC_DETAIL: tuple[tuple[type[AlvearyError], str], ...] = (
+    (StoreUnavailable, "The data store cannot be reached; retry later."),
+    (ChunkDecodeError, "A stored chunk cannot be decoded."),
+    (DeadlineExceeded, "The request ran past its deadline."),
+)
+
+
+def domain_response(exc: AlvearyError, retry_after: int) -> Response:
+    """The problem response for a domain error, status and title from the one table."""
+    _, status, title = http_status(exc)
+    headers = {"Retry-After": str(retry_after)} if isinstance(exc, StoreUnavailable) else None
     if isinstance(exc, InvalidInput):
         value = exc.value
         if isinstance(value, str) and len(value) > 200:
@@ -115,19 +105,15 @@ def _domain(exc: AlvearyError, retry_after: int) -> Response:
         return problem_response(status, title, exc.message, kind=exc.kind, name=str(exc.name))
     # Store and decode errors may carry URLs or paths: the client only gets the title.
     log.warning("%s: %s", type(exc).__name__, exc)
-    details = {
-        503: "The data store cannot be reached; retry later.",
-        502: "A stored chunk cannot be decoded.",
-        504: "The request ran past its deadline.",
-    }
-    return problem_response(status, title, details.get(status, "Internal error."), headers=headers)
+    detail = next((d for cls, d in _PUBLIC_DETAIL if isinstance(exc, cls)), "Internal error.")
+    return problem_response(status, title, detail, headers=headers)
 
 
 # The declared range of each bounded parameter, to name the whole range in errors.
 _RANGES = {
     "lat": "[-90, 90] degrees",
     "lon": "[-180, 180] degrees",
-    "level": "integers in [0, 24]",
+    "level": f"integers in [0, {grid.MAX_LEVEL}]",
     "k": "integers in [0, 10000] (and at most the configured max_k)",
     "meters": "[0, 20037509] metres",
     "f": "json, geojson, arrow or csv",
@@ -163,17 +149,20 @@ def install_handlers(app: FastAPI, retry_after: int) -> None:
 
     @app.exception_handler(AlvearyError)
     async def _alveary(request: Request, exc: AlvearyError) -> Response:
-        return _domain(exc, retry_after)
+        return domain_response(exc, retry_after)
 
     @app.exception_handler(RequestValidationError)
     async def _validation(request: Request, exc: RequestValidationError) -> Response:
         info = _validation_detail(exc)
-        return problem_response(422, "Invalid parameter", info.pop("detail"), **info)
+        _, status, title = http_status(InvalidInput)
+        return problem_response(status, title, info.pop("detail"), **info)
 
     @app.exception_handler(StarletteHTTPException)
     async def _http(request: Request, exc: StarletteHTTPException) -> Response:
-        titles = {404: "Not found", 405: "Method not allowed", 413: "Request body too large"}
-        title = titles.get(exc.status_code, "HTTP error")
+        # Routing errors (no such path, method not allowed): the table's title where the
+        # status is one of ours, else the standard reason phrase.
+        titles = {row.status: row.title for row in HTTP_STATUS}
+        title = titles.get(exc.status_code) or HTTPStatus(exc.status_code).phrase
         detail = exc.detail if isinstance(exc.detail, str) else title
         return problem_response(
             exc.status_code, title, detail, headers=getattr(exc, "headers", None)

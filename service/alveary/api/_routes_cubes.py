@@ -20,6 +20,7 @@ from alveary.api._schemas import (
     ZonesAnswer,
     geometry_body_schema,
 )
+from alveary.api._service import Service
 from alveary.api.deps import (
     CUBE_FORMATS,
     AcceptHeader,
@@ -51,11 +52,12 @@ from alveary.query import (
     PointsQuery,
     PolygonQuery,
     RadiusQuery,
+    ServedCube,
     format_time,
     parse_bbox,
     parse_polygon,
+    parse_zone,
 )
-from alveary.query._models import parse_zone
 
 __all__ = ["router"]
 
@@ -81,7 +83,9 @@ def _json(body: Any, status: int = 200) -> Response:
     return Response(orjson.dumps(body), status_code=status, media_type="application/json")
 
 
-def _cube_meta(request: Request, cube_id: str, title: str | None, cube: Any, full: bool) -> dict:
+def _cube_meta(
+    cube_id: str, title: str | None, cube: ServedCube | None, full: bool
+) -> dict[str, Any]:
     links = [
         {"href": f"/cubes/{cube_id}", "rel": "self" if full else "item", "type": "application/json"}
     ]
@@ -97,8 +101,8 @@ def _cube_meta(request: Request, cube_id: str, title: str | None, cube: Any, ful
             "coverage": None,
             "links": links,
         }
-    times = np.asarray(cube.times)
-    text = format_time(times)
+    snap = cube.snapshot()
+    text = format_time(snap.times)
     axis: dict[str, Any] = {
         "start": text[0] if text else None,
         "end": text[-1] if text else None,
@@ -106,23 +110,19 @@ def _cube_meta(request: Request, cube_id: str, title: str | None, cube: Any, ful
     }
     if full:
         axis["values"] = text
-    variables = {}
-    for name, meta in cube.variables.items():
-        get = meta.get if isinstance(meta, dict) else (lambda k, m=meta: getattr(m, k, ""))
-        variables[name] = {
-            "units": str(get("units") or ""),
-            "long_name": str(get("long_name") or ""),
-        }
-    coverage = getattr(cube, "coverage", None)
+    variables = {
+        name: {"units": meta.units, "long_name": meta.long_name}
+        for name, meta in snap.variables.items()
+    }
     return {
         "id": cube_id,
-        "title": title or str(getattr(cube, "title", "") or cube_id),
+        "title": title or snap.title or cube_id,
         "available": True,
-        "version": str(cube.version),
-        "levels": [int(v) for v in cube.levels],
+        "version": snap.version,
+        "levels": list(snap.levels),
         "variables": variables,
         "time": axis,
-        "coverage": [float(v) for v in coverage] if coverage is not None else None,
+        "coverage": list(snap.coverage),
         "links": links,
     }
 
@@ -133,10 +133,8 @@ def _cube_meta(request: Request, cube_id: str, title: str | None, cube: Any, ful
     summary="List the cubes this server publishes",
     response_model=CubeList,
 )
-async def list_cubes(request: Request, service: ServiceDep) -> Response:
-    out = [
-        _cube_meta(request, s.id, s.title, cube, full=False) for s, cube in service.catalog.cubes()
-    ]
+async def list_cubes(service: ServiceDep) -> Response:
+    out = [_cube_meta(s.id, s.title, cube, full=False) for s, cube in service.catalog.cubes()]
     return _json({"cubes": out})
 
 
@@ -146,10 +144,10 @@ async def list_cubes(request: Request, service: ServiceDep) -> Response:
     summary="One cube: variables, units, levels, time axis, coverage and version",
     response_model=CubeMeta,
 )
-async def get_cube(request: Request, service: ServiceDep, cube: CubeId) -> Response:
+async def get_cube(service: ServiceDep, cube: CubeId) -> Response:
     source = service.catalog.source(cube)
     obj = service.catalog.get(cube)
-    return _json(_cube_meta(request, cube, source.title, obj, full=True))
+    return _json(_cube_meta(cube, source.title, obj, full=True))
 
 
 @router.get(
@@ -176,7 +174,7 @@ async def query_point(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     # Parameters are flat here (no sub-dependencies): this is the hot path of dashboards.
-    service = request.app.state.service
+    service: Service = request.app.state.service
     sel = make_selection(level, vars_, time)
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)

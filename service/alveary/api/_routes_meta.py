@@ -7,7 +7,8 @@ import orjson
 from fastapi import APIRouter
 from starlette.responses import Response
 
-from alveary import __version__
+from alveary import StoreUnavailable, __version__
+from alveary._errors import http_status
 from alveary.api._schemas import Landing, Ready
 from alveary.api.deps import ServiceDep
 
@@ -16,6 +17,7 @@ __all__ = ["router"]
 router = APIRouter(tags=["service"])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
+_NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 
 
 @router.get(
@@ -55,7 +57,7 @@ async def health() -> Response:
     operation_id="ready",
     summary="Readiness: every configured store can be reached",
     response_model=Ready,
-    responses={503: {"description": "A store cannot be reached.", "model": Ready}},
+    responses={_NOT_READY: {"description": "A store cannot be reached.", "model": Ready}},
 )
 async def ready(service: ServiceDep) -> Response:
     status = await anyio.to_thread.run_sync(service.ready)
@@ -67,7 +69,7 @@ async def ready(service: ServiceDep) -> Response:
     headers = None if ok else {"Retry-After": str(service.settings.retry_after)}
     return Response(
         orjson.dumps(body),
-        status_code=200 if ok else 503,
+        status_code=200 if ok else _NOT_READY,
         media_type="application/json",
         headers=headers,
     )

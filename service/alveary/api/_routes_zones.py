@@ -14,7 +14,7 @@ from alveary._errors import InvalidInput, NotFound
 from alveary.api._schemas import ZoneInfo
 from alveary.api._shapes import zone_geometries
 from alveary.api.deps import LatParam, LonParam, ServiceDep, ZoneFormatDep, ZonePath
-from alveary.query._models import parse_zone
+from alveary.query import parse_zone
 
 __all__ = ["router"]
 
@@ -24,7 +24,7 @@ RequiredLevel = Annotated[
     int, Query(ge=0, le=grid.MAX_LEVEL, description="Refinement level.", examples=[9])
 ]
 
-_GEOJSON = {
+_GEOJSON: dict[int | str, dict[str, Any]] = {
     200: {
         "description": "The zone. JSON by default; a GeoJSON Feature by Accept or f.",
         "content": {"application/geo+json": {"schema": {"type": "object"}}},
@@ -47,7 +47,7 @@ def zone_info(zone: int) -> dict[str, Any]:
     level = int(grid.zone_level(z))
     lat, lon = grid.zone_to_point(z)
     pentagon = bool(grid.is_pentagon(z))
-    area = grid.zone_area(level) * (5.0 / 6.0 if pentagon else 1.0)
+    area = float(grid.zone_areas(z))
     parent = _ref(grid.zone_parent(z))[0] if level > 0 else None
     children: list[dict[str, Any]] = []
     if level < grid.MAX_LEVEL:

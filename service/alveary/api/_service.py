@@ -9,68 +9,41 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
-import hashlib
 import logging
 from typing import Any
 
 import anyio.to_thread
 from starlette.responses import Response
 
+from alveary._errors import AlvearyError
 from alveary.api._answers import Answer, AnswerCache, PlanCache
 from alveary.api._encode import encode
+from alveary.api._etag import etag_for, matches
 from alveary.api._metrics import Metrics
 from alveary.api._settings import Settings
+from alveary.cube import ChunkCache
 from alveary.query import (
     BboxQuery,
     Catalog,
+    Plan,
     PointQuery,
     PolygonQuery,
     Query,
+    Resolved,
+    StatsResult,
+    ZoneResult,
     execute,
     make_plan,
     resolve,
 )
 
-__all__ = ["Service", "etag_for", "matches"]
+__all__ = ["Service"]
 
 log = logging.getLogger("alveary.api")
 
 # Answers with at most this many (zone, time) rows are encoded on the event loop; larger
 # ones in a worker thread so that one big answer does not stall small ones.
 _INLINE_ROWS = 2_000
-
-
-def etag_for(key: str, fmt: str) -> str:
-    """A strong ETag from the normalised query and the format.
-
-    >>> etag_for("point|demo|v1|7|rain|0:1|lat=1.0;lon=2.0", "json")[:1]
-    '"'
-    """
-    digest = hashlib.blake2b(f"{key}|{fmt}".encode(), digest_size=16).hexdigest()
-    return f'"{digest}"'
-
-
-def matches(if_none_match: str | None, etag: str) -> bool:
-    """Whether an If-None-Match header matches an ETag (weak comparison, RFC 9110).
-
-    >>> matches('W/"abc", "def"', '"abc"'), matches("*", '"x"'), matches('"y"', '"x"')
-    (True, True, False)
-    """
-    if not if_none_match:
-        return False
-    for tag in if_none_match.split(","):
-        tag = tag.strip()
-        if tag == "*" or tag.removeprefix("W/") == etag:
-            return True
-    return False
-
-
-def _make_cache(max_bytes: int) -> Any:
-    try:
-        from alveary.cube import ChunkCache
-    except ImportError:  # pragma: no cover - the cube layer is a hard dependency
-        return None
-    return ChunkCache(max_bytes)
 
 
 class Service:
@@ -80,17 +53,14 @@ class Service:
         self.settings = settings
         self.limits = settings.limits
         self.catalog = catalog if catalog is not None else Catalog(settings.sources())
-        self.cache = _make_cache(settings.cache_bytes)
+        self.cache = ChunkCache(settings.cache_bytes)
         self.answers = AnswerCache(
             settings.answer_cache_bytes, max(settings.answer_cache_bytes // 16, 1)
         )
         self.plans = PlanCache(settings.plan_cache_bytes)
-        self.metrics = Metrics(self._cube_list, lambda: self.cache, lambda: self.answers)
+        self.metrics = Metrics(self.catalog, self.cache, self.answers)
         self.cache_control = f"public, max-age={settings.max_age}"
-        self._refresher: asyncio.Task | None = None
-
-    def _cube_list(self) -> list[tuple[str, Any]]:
-        return [(s.id, c) for s, c in self.catalog.cubes()]
+        self._refresher: asyncio.Task[None] | None = None
 
     async def start(self) -> None:
         status = await anyio.to_thread.run_sync(self.catalog.open_all)
@@ -123,8 +93,8 @@ class Service:
     def current_version(self, cube_id: str) -> str | None:
         """The version a cube serves now (None if it is not open)."""
         try:
-            return str(self.catalog.get(cube_id).version)
-        except Exception:
+            return self.catalog.get(cube_id).snapshot().version
+        except AlvearyError:  # unknown, or not reachable yet
             return None
 
     async def answer(
@@ -152,29 +122,37 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
-        # Area queries enumerate many zones: their plans are kept for repeats.
-        keep = isinstance(query, BboxQuery | PolygonQuery) and self.plans.max_bytes > 0
+        plan = await self._plan(resolved)
+        result = await execute(plan, self.cache, deadline=self.settings.deadline)
+        body, media = await self._encode(result, fmt, geometry)
+        if caching:
+            operation = f"query_{query.op}"
+            answer = Answer(cube_id, resolved.version, etag, body, media, operation)
+            self.answers.put_answer(answer, key)
+        return Response(body, media_type=media, headers=headers)
+
+    async def _plan(self, resolved: Resolved) -> Plan:
+        """The query's plan: kept for repeats of area queries (they enumerate many zones);
+        made off the event loop unless it is a single point."""
+        keep = isinstance(resolved.query, BboxQuery | PolygonQuery) and self.plans.max_bytes > 0
         plan = self.plans.get(resolved.key) if keep else None
         if plan is None:
-            if isinstance(query, PointQuery):
+            if isinstance(resolved.query, PointQuery):
                 plan = make_plan(resolved, self.limits)
             else:
                 plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
             if keep:
                 self.plans.put(resolved.key, plan)
-        result = await execute(plan, self.cache, deadline=self.settings.deadline)
-        rows = result.zones.size * max(result.times.size, 1) if hasattr(result, "zones") else 0
+        return plan
+
+    async def _encode(
+        self, result: ZoneResult | StatsResult, fmt: str, geometry: dict[str, Any] | None
+    ) -> tuple[bytes, str]:
+        """Small answers are encoded on the event loop, large ones in a worker thread."""
+        rows = result.rows if isinstance(result, ZoneResult) else 0
         if rows <= _INLINE_ROWS:
-            body, media = encode(result, fmt, geometry=geometry)
-        else:
-            body, media = await anyio.to_thread.run_sync(
-                lambda: encode(result, fmt, geometry=geometry)
-            )
-        if caching:
-            operation = f"query_{query.op}"
-            answer = Answer(cube_id, resolved.version, etag, body, media, operation)
-            self.answers.put(answer, key)
-        return Response(body, media_type=media, headers=headers)
+            return encode(result, fmt, geometry=geometry)
+        return await anyio.to_thread.run_sync(lambda: encode(result, fmt, geometry=geometry))
 
     def ready(self) -> dict[str, str | None]:
         """Check every store now (blocking: run off the loop); id -> None or error name."""

@@ -16,26 +16,30 @@ The TOML file::
 
 from __future__ import annotations
 
-import re
 import tomllib
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
 from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 
 from alveary._errors import InvalidInput
+from alveary.cube import check_cube_id, default_store_root
 from alveary.query import CubeSource, Limits
 
-__all__ = ["CubeConfig", "Settings", "default_store"]
-
-_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+__all__ = ["CubeConfig", "Settings", "default_store", "load_settings", "scan_store"]
 
 
 def default_store() -> Path:
     """The embedded local store: ``$ALVEARY_STORE`` or ``var/cubes`` under the working dir."""
-    from alveary.cube import default_store_root
-
     return Path(default_store_root())
 
 
@@ -49,12 +53,7 @@ class CubeConfig(BaseModel):
     title: str | None = None
     storage_options: dict[str, Any] | None = None
 
-    @field_validator("id")
-    @classmethod
-    def _id(cls, v: str) -> str:
-        if not _ID.match(v):
-            raise ValueError("cube ids are 1-64 letters, digits, '_', '-', '.'")
-        return v
+    _id = field_validator("id")(check_cube_id)
 
     def source(self) -> CubeSource:
         return CubeSource(self.id, self.url, self.title, self.storage_options)
@@ -160,10 +159,37 @@ def scan_store(root: Path) -> list[CubeSource]:
         return []
     out = []
     for child in sorted(root.iterdir()):
-        if child.is_dir() and _ID.match(child.name) and _looks_like_cube(child):
+        if child.is_dir() and _is_cube_id(child.name) and _looks_like_cube(child):
             out.append(CubeSource(child.name, str(child.resolve())))
     return out
 
 
+def _is_cube_id(name: str) -> bool:
+    try:
+        check_cube_id(name)
+    except InvalidInput:
+        return False
+    return True
+
+
 def _looks_like_cube(path: Path) -> bool:
     return (path / "current.json").is_file()  # the published-version pointer of a cube
+
+
+def load_settings(overrides: Mapping[str, Any]) -> Settings:
+    """Settings from ALVEARY_* variables and ``overrides``; an error names the setting.
+
+    Raises
+    ------
+    InvalidInput
+        The first invalid setting, with its name, value and what is allowed.
+    """
+    try:
+        return Settings(**overrides)
+    except ValidationError as exc:
+        first = exc.errors()[0]
+        cause = (first.get("ctx") or {}).get("error")
+        if isinstance(cause, InvalidInput):
+            raise cause from None
+        where = ".".join(str(p) for p in first.get("loc", ())) or "settings"
+        raise InvalidInput(where, first.get("input"), str(first.get("msg"))) from None

@@ -39,7 +39,8 @@ __all__ = [
 
 
 async def get_service(request: Request) -> Service:
-    return request.app.state.service
+    service: Service = request.app.state.service
+    return service
 
 
 ServiceDep = Annotated[Service, Depends(get_service)]

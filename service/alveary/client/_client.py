@@ -1,31 +1,22 @@
 """A small HTTP client for the alveary service, on httpx: one method per operation.
 
 Answers come back as dicts (JSON, GeoJSON) or ``pyarrow.Table`` (``f="arrow"``); CSV as
-text. Error responses (problem+json) are raised as the package's own exceptions:
-422 -> :class:`InvalidInput`, 404 -> :class:`NotFound`, 413 -> :class:`LimitExceeded`,
-503 -> :class:`StoreUnavailable`, 502 -> :class:`ChunkDecodeError`, 504 ->
-:class:`DeadlineExceeded`, anything else -> :class:`AlvearyError`.
+text. Error responses (problem+json) are raised as the package's own exceptions, the class
+taken from the status by the one table the service answers with
+(:data:`alveary._errors.HTTP_STATUS`: 422 :class:`InvalidInput`, 404 :class:`NotFound`,
+413 :class:`LimitExceeded`, 503, 502, 504 the store and deadline errors).
 """
 
 from __future__ import annotations
 
 import datetime as _dt
-import inspect
-from collections.abc import Sequence
+from collections.abc import Awaitable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Generic, NoReturn, TypeVar
 
 import httpx
 
-from alveary._errors import (
-    AlvearyError,
-    ChunkDecodeError,
-    DeadlineExceeded,
-    InvalidInput,
-    LimitExceeded,
-    NotFound,
-    StoreUnavailable,
-)
+from alveary._errors import InvalidInput, LimitExceeded, NotFound, error_for_status
 
 __all__ = ["AsyncClient", "Client", "format_datetime"]
 
@@ -38,6 +29,9 @@ _ACCEPT = {
 
 Instant = str | _dt.datetime | _dt.date | None
 Datetime = str | _dt.datetime | _dt.date | tuple[Instant, Instant] | None
+Names = str | Sequence[str] | None
+Vars = Names
+R = TypeVar("R")
 
 
 def _instant(value: Instant) -> str:
@@ -75,11 +69,10 @@ class _Call:
     params: dict[str, Any] = field(default_factory=dict)
     body: Any = None
     fmt: str = "json"
+    answers_error: bool = False  # an error status still carries the answer (readiness)
 
 
-def _selection(
-    level: int | None, vars: Sequence[str] | str | None, datetime: Datetime
-) -> dict[str, Any]:
+def _selection(level: int | None, vars: Vars, datetime: Datetime) -> dict[str, Any]:
     params: dict[str, Any] = {}
     if level is not None:
         params["level"] = int(level)
@@ -91,35 +84,28 @@ def _selection(
     return params
 
 
-def _raise(response: httpx.Response) -> None:
+def _raise(response: httpx.Response) -> NoReturn:
+    """Raise the package's exception for a problem response (status from the one table)."""
     try:
         doc = response.json()
     except ValueError:
         doc = {"detail": response.text[:200]}
     detail = str(doc.get("detail", ""))
-    status = response.status_code
-    if status == 422:
-        raise InvalidInput(
-            str(doc.get("parameter", "request")),
-            doc.get("value"),
-            doc.get("allowed"),
-            message=detail,
-        )
-    if status == 404:
-        raise NotFound(str(doc.get("kind", "resource")), doc.get("name", ""), message=detail)
-    if status == 413:
-        raise LimitExceeded(
-            str(doc.get("limit", "request")), doc.get("requested", 0), doc.get("maximum", 0)
-        )
-    cls = {503: StoreUnavailable, 502: ChunkDecodeError, 504: DeadlineExceeded}.get(
-        status, AlvearyError
-    )
-    raise cls(f"HTTP {status}: {detail}")
+    cls = error_for_status(response.status_code)
+    if issubclass(cls, LimitExceeded):
+        raise cls(str(doc.get("limit", "request")), doc.get("requested", 0), doc.get("maximum", 0))
+    if issubclass(cls, InvalidInput):
+        parameter = str(doc.get("parameter", "request"))
+        raise cls(parameter, doc.get("value"), doc.get("allowed"), message=detail)
+    if issubclass(cls, NotFound):
+        raise cls(str(doc.get("kind", "resource")), doc.get("name", ""), message=detail)
+    raise cls(f"HTTP {response.status_code}: {detail}")
 
 
-def _decode(response: httpx.Response, fmt: str) -> Any:
-    if response.status_code >= 400:
+def _decode(response: httpx.Response, call: _Call) -> Any:
+    if response.status_code >= 400 and not call.answers_error:
         _raise(response)
+    fmt = call.fmt
     if fmt == "arrow":
         import pyarrow as pa
 
@@ -129,97 +115,160 @@ def _decode(response: httpx.Response, fmt: str) -> Any:
     return response.json()
 
 
-class _Operations:
-    """Request builders shared by the sync and async clients (no I/O here)."""
+class _Operations(Generic[R]):
+    """One method per operation of the service; ``_send`` makes the request.
 
-    @staticmethod
-    def landing() -> _Call:
-        return _Call("GET", "/")
+    The sync client's ``_send`` returns the answer, the async client's an awaitable of it,
+    so each operation is written once for both.
+    """
 
-    @staticmethod
-    def cubes() -> _Call:
-        return _Call("GET", "/cubes")
+    def _send(self, call: _Call) -> R:
+        raise NotImplementedError
 
-    @staticmethod
-    def cube(cube: str) -> _Call:
-        return _Call("GET", f"/cubes/{cube}")
+    def landing(self) -> R:
+        """Links and version (``GET /``)."""
+        return self._send(_Call("GET", "/"))
 
-    @staticmethod
-    def point(cube, lat, lon, *, level=None, vars=None, datetime=None, f="json") -> _Call:
+    def cubes(self) -> R:
+        """The cubes the server publishes."""
+        return self._send(_Call("GET", "/cubes"))
+
+    def cube(self, cube: str) -> R:
+        """One cube: variables, units, levels, time axis, coverage and version."""
+        return self._send(_Call("GET", f"/cubes/{cube}"))
+
+    def point(
+        self,
+        cube: str,
+        lat: float,
+        lon: float,
+        *,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "json",
+    ) -> R:
+        """Values at the zone under a point."""
         params = {"lat": lat, "lon": lon, **_selection(level, vars, datetime), "f": f}
-        return _Call("GET", f"/cubes/{cube}/point", params, fmt=f)
+        return self._send(_Call("GET", f"/cubes/{cube}/point", params, fmt=f))
 
-    @staticmethod
     def disk(
-        cube, lat=None, lon=None, *, k, zone=None, level=None, vars=None, datetime=None, f="json"
-    ) -> _Call:
+        self,
+        cube: str,
+        lat: float | None = None,
+        lon: float | None = None,
+        *,
+        k: int,
+        zone: int | str | None = None,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "json",
+    ) -> R:
+        """Values of every zone within ``k`` steps of a zone (given, or under a point)."""
         params: dict[str, Any] = {"k": k, **_selection(level, vars, datetime), "f": f}
         if zone is not None:
             params["zone"] = str(zone)
         else:
             params.update(lat=lat, lon=lon)
-        return _Call("GET", f"/cubes/{cube}/disk", params, fmt=f)
+        return self._send(_Call("GET", f"/cubes/{cube}/disk", params, fmt=f))
 
-    @staticmethod
     def radius(
-        cube, lat, lon, meters, *, nearest=False, level=None, vars=None, datetime=None, f="json"
-    ) -> _Call:
+        self,
+        cube: str,
+        lat: float,
+        lon: float,
+        meters: float,
+        *,
+        nearest: bool = False,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "json",
+    ) -> R:
+        """Values of the zones whose centres lie within ``meters`` of a point."""
         params = {"lat": lat, "lon": lon, "meters": meters, **_selection(level, vars, datetime)}
         params.update(nearest="true" if nearest else "false", f=f)
-        return _Call("GET", f"/cubes/{cube}/radius", params, fmt=f)
+        return self._send(_Call("GET", f"/cubes/{cube}/radius", params, fmt=f))
 
-    @staticmethod
-    def bbox(cube, bbox, *, stats=None, level=None, vars=None, datetime=None, f="json") -> _Call:
+    def bbox(
+        self,
+        cube: str,
+        bbox: str | Sequence[float],
+        *,
+        stats: Names = None,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "json",
+    ) -> R:
+        """Values or statistics of the zones whose centres lie in a box (w, s, e, n)."""
         text = bbox if isinstance(bbox, str) else ",".join(repr(float(v)) for v in bbox)
         params: dict[str, Any] = {"bbox": text, **_selection(level, vars, datetime), "f": f}
-        if stats:
-            params["stats"] = stats if isinstance(stats, str) else ",".join(stats)
-        return _Call("GET", f"/cubes/{cube}/bbox", params, fmt=f)
+        params.update(_stats(stats))
+        return self._send(_Call("GET", f"/cubes/{cube}/bbox", params, fmt=f))
 
-    @staticmethod
     def polygon(
-        cube, geometry, *, stats=None, level=None, vars=None, datetime=None, f="json"
-    ) -> _Call:
+        self,
+        cube: str,
+        geometry: Any,
+        *,
+        stats: Names = None,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "json",
+    ) -> R:
+        """Values or statistics in a GeoJSON (Multi)Polygon, a Feature or a shapely shape."""
         if hasattr(geometry, "__geo_interface__"):
             geometry = geometry.__geo_interface__
         params: dict[str, Any] = {**_selection(level, vars, datetime), "f": f}
-        if stats:
-            params["stats"] = stats if isinstance(stats, str) else ",".join(stats)
-        return _Call("POST", f"/cubes/{cube}/polygon", params, _plain(geometry), fmt=f)
+        params.update(_stats(stats))
+        # (tuples, as in __geo_interface__, are written as JSON arrays)
+        return self._send(_Call("POST", f"/cubes/{cube}/polygon", params, geometry, fmt=f))
 
-    @staticmethod
-    def points(cube, lat, lon, *, level=None, vars=None, datetime=None, f="arrow") -> _Call:
+    def points(
+        self,
+        cube: str,
+        lat: Sequence[float],
+        lon: Sequence[float],
+        *,
+        level: int | None = None,
+        vars: Vars = None,
+        datetime: Datetime = None,
+        f: str = "arrow",
+    ) -> R:
+        """Values at many points at once (Arrow by default)."""
         body = {"lat": [float(v) for v in lat], "lon": [float(v) for v in lon]}
         params = {**_selection(level, vars, datetime), "f": f}
-        return _Call("POST", f"/cubes/{cube}/points", params, body, fmt=f)
+        return self._send(_Call("POST", f"/cubes/{cube}/points", params, body, fmt=f))
 
-    @staticmethod
-    def zone(zone, *, f="json") -> _Call:
-        return _Call("GET", f"/zones/{zone}", {"f": f}, fmt=f)
+    def zone(self, zone: int | str, *, f: str = "json") -> R:
+        """One zone: level, centre, boundary, neighbours, parent and children."""
+        return self._send(_Call("GET", f"/zones/{zone}", {"f": f}, fmt=f))
 
-    @staticmethod
-    def find_zone(lat, lon, level, *, f="json") -> _Call:
-        return _Call("GET", "/zones", {"lat": lat, "lon": lon, "level": level, "f": f}, fmt=f)
+    def find_zone(self, lat: float, lon: float, level: int, *, f: str = "json") -> R:
+        """The zone under a point at a level."""
+        params = {"lat": lat, "lon": lon, "level": level, "f": f}
+        return self._send(_Call("GET", "/zones", params, fmt=f))
 
-    @staticmethod
-    def health() -> _Call:
-        return _Call("GET", "/healthz")
+    def health(self) -> R:
+        """Liveness."""
+        return self._send(_Call("GET", "/healthz"))
 
-    @staticmethod
-    def ready() -> _Call:
-        return _Call("GET", "/readyz")
+    def ready(self) -> R:
+        """Readiness: ``{"ready": ..., "cubes": ...}`` (also when not ready)."""
+        return self._send(_Call("GET", "/readyz", answers_error=True))
 
-    @staticmethod
-    def metrics() -> _Call:
-        return _Call("GET", "/metrics", fmt="text")
+    def metrics(self) -> R:
+        """Prometheus metrics, as text."""
+        return self._send(_Call("GET", "/metrics", fmt="text"))
 
 
-def _plain(obj: Any) -> Any:
-    if isinstance(obj, dict):
-        return {k: _plain(v) for k, v in obj.items()}
-    if isinstance(obj, list | tuple):
-        return [_plain(v) for v in obj]
-    return obj
+def _stats(stats: Names) -> dict[str, str]:
+    if not stats:
+        return {}
+    return {"stats": stats if isinstance(stats, str) else ",".join(stats)}
 
 
 def _request_args(call: _Call, headers: dict[str, str] | None) -> dict[str, Any]:
@@ -232,48 +281,7 @@ def _request_args(call: _Call, headers: dict[str, str] | None) -> dict[str, Any]
     return args
 
 
-def _describe(method: Any, build: Any, name: str) -> None:
-    sig = inspect.signature(build)
-    self_param = inspect.Parameter("self", inspect.Parameter.POSITIONAL_OR_KEYWORD)
-    method.__signature__ = sig.replace(parameters=[self_param, *sig.parameters.values()])
-    method.__name__ = method.__qualname__ = name
-    method.__doc__ = f"The ``{name}`` operation of the service (see its /docs)."
-
-
-def _sync_method(name: str):
-    build = getattr(_Operations, name)
-
-    def method(self: Client, *args: Any, **kwargs: Any) -> Any:
-        call = build(*args, **kwargs)
-        response = self._http.request(call.method, call.path, **_request_args(call, self.headers))
-        if call.path == "/readyz" and response.status_code == 503:
-            return response.json()
-        return _decode(response, call.fmt)
-
-    _describe(method, build, name)
-    return method
-
-
-def _async_method(name: str):
-    build = getattr(_Operations, name)
-
-    async def method(self: AsyncClient, *args: Any, **kwargs: Any) -> Any:
-        call = build(*args, **kwargs)
-        response = await self._http.request(
-            call.method, call.path, **_request_args(call, self.headers)
-        )
-        if call.path == "/readyz" and response.status_code == 503:
-            return response.json()
-        return _decode(response, call.fmt)
-
-    _describe(method, build, name)
-    return method
-
-
-_NAMES = [n for n in vars(_Operations) if not n.startswith("_")]
-
-
-class Client:
+class Client(_Operations[Any]):
     """Synchronous client.
 
     Parameters
@@ -304,6 +312,10 @@ class Client:
         self.headers = headers
         self._http = httpx.Client(base_url=base_url, timeout=timeout, transport=transport)
 
+    def _send(self, call: _Call) -> Any:
+        response = self._http.request(call.method, call.path, **_request_args(call, self.headers))
+        return _decode(response, call)
+
     def close(self) -> None:
         self._http.close()
 
@@ -314,7 +326,7 @@ class Client:
         self.close()
 
 
-class AsyncClient:
+class AsyncClient(_Operations[Awaitable[Any]]):
     """Asynchronous client, the same methods as :class:`Client` (awaitable)."""
 
     def __init__(
@@ -328,6 +340,14 @@ class AsyncClient:
         self.headers = headers
         self._http = httpx.AsyncClient(base_url=base_url, timeout=timeout, transport=transport)
 
+    def _send(self, call: _Call) -> Awaitable[Any]:
+        return self._asend(call)
+
+    async def _asend(self, call: _Call) -> Any:
+        args = _request_args(call, self.headers)
+        response = await self._http.request(call.method, call.path, **args)
+        return _decode(response, call)
+
     async def aclose(self) -> None:
         await self._http.aclose()
 
@@ -336,8 +356,3 @@ class AsyncClient:
 
     async def __aexit__(self, *exc: object) -> None:
         await self.aclose()
-
-
-for _name in _NAMES:
-    setattr(Client, _name, _sync_method(_name))
-    setattr(AsyncClient, _name, _async_method(_name))

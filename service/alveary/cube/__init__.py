@@ -8,7 +8,7 @@ a new version (fresh, or inheriting the published one's chunks to append),
 pure: :meth:`Cube.plan` names the exact chunks a read fetches without touching the store.
 """
 
-from alveary.cube._cache import ChunkCache, IOStats, io_totals
+from alveary.cube._cache import ByteLRU, ChunkCache, IOStats, io_totals
 from alveary.cube._checksum import is_checksum_error
 from alveary.cube._layout import (
     DEFAULT_SPATIAL_BLOCK,
@@ -18,10 +18,11 @@ from alveary.cube._layout import (
     default_chunk_shape,
 )
 from alveary.cube._manifest import Manifest
-from alveary.cube._meta import FORMAT_VERSION, CubeMeta, VariableInfo, check_cube_id, parse_time
+from alveary.cube._meta import FORMAT_VERSION, CubeMeta, VariableInfo, check_cube_id
 from alveary.cube._plan import ChunkRead, ReadPlan, plan_cells
-from alveary.cube._reader import Cube, open_cube
+from alveary.cube._reader import Cube, CubeVersion, open_cube
 from alveary.cube._store import default_store_root, normalize_url
+from alveary.cube._time import RFC3339_EXAMPLE, parse_time, to_times
 from alveary.cube._versions import Retention, VersionInfo, list_versions, rollback
 from alveary.cube._writer import ChunkSink, ChunkWrite, CubeWriter, create_cube
 
@@ -29,6 +30,8 @@ __all__ = [
     "DEFAULT_SPATIAL_BLOCK",
     "DEFAULT_TIME_BLOCK",
     "FORMAT_VERSION",
+    "RFC3339_EXAMPLE",
+    "ByteLRU",
     "ChunkCache",
     "ChunkRead",
     "ChunkShape",
@@ -36,6 +39,7 @@ __all__ = [
     "ChunkWrite",
     "Cube",
     "CubeMeta",
+    "CubeVersion",
     "CubeWriter",
     "IOStats",
     "LevelLayout",
@@ -56,4 +60,5 @@ __all__ = [
     "parse_time",
     "plan_cells",
     "rollback",
+    "to_times",
 ]

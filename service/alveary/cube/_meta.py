@@ -5,7 +5,6 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
@@ -14,6 +13,7 @@ from alveary import grid
 from alveary._errors import CubeFormatError, InvalidInput
 from alveary.cube._layout import ChunkShape
 from alveary.cube._manifest import Manifest
+from alveary.cube._time import parse_time, to_times
 
 __all__ = [
     "FORMAT_NAME",
@@ -66,52 +66,6 @@ def check_cube_id(cube_id: str) -> str:
             "cube_id", cube_id, "1-64 characters of A-Z a-z 0-9 _ . -, starting alphanumeric"
         )
     return cube_id
-
-
-def parse_time(value: Any, parameter: str = "datetime") -> np.datetime64:
-    """One instant as ``datetime64[s]`` (UTC): RFC 3339 text, datetime or datetime64.
-
-    Examples
-    --------
-    >>> parse_time("2024-03-01T06:00:00+02:00")
-    np.datetime64('2024-03-01T04:00:00')
-    >>> parse_time("2024-03-01")
-    np.datetime64('2024-03-01T00:00:00')
-    """
-    if isinstance(value, np.datetime64):
-        if np.isnat(value):
-            raise InvalidInput(parameter, str(value), "a date-time, not NaT")
-        return value.astype("datetime64[s]")
-    if isinstance(value, datetime):
-        if value.tzinfo is not None:
-            value = value.astimezone(UTC).replace(tzinfo=None)
-        return np.datetime64(value.replace(microsecond=0), "s")
-    if isinstance(value, str):
-        text = value.strip()
-        try:
-            dt = datetime.fromisoformat(text.replace("z", "Z"))
-        except ValueError:
-            raise InvalidInput(
-                parameter, value, "an RFC 3339 date-time such as 2024-03-01T00:00:00Z"
-            ) from None
-        return parse_time(dt, parameter)
-    raise InvalidInput(parameter, value, "an RFC 3339 date-time such as 2024-03-01T00:00:00Z")
-
-
-def to_times(values: Any, parameter: str = "times") -> np.ndarray:
-    """A strictly increasing time axis as ``datetime64[s]``."""
-    arr = np.asarray(values)
-    if arr.ndim != 1 or arr.size == 0:
-        raise InvalidInput(parameter, None, "a non-empty 1-d sequence of date-times")
-    if np.issubdtype(arr.dtype, np.datetime64):
-        out = arr.astype("datetime64[s]")
-    else:
-        out = np.array([parse_time(v, parameter) for v in arr.tolist()], dtype="datetime64[s]")
-    if np.isnat(out).any():
-        raise InvalidInput(parameter, None, "date-times without NaT")
-    if out.size > 1 and not (np.diff(out.astype(np.int64)) > 0).all():
-        raise InvalidInput(parameter, None, "strictly increasing date-times")
-    return out
 
 
 def _float_or_none(x: Any) -> float | None:

@@ -4,40 +4,101 @@ from __future__ import annotations
 
 import asyncio
 import threading
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 import zarr
+import zarr.api.asynchronous
 from zarr.core.sync import _get_loop, sync
 
+from alveary import grid
 from alveary._errors import CubeFormatError, GridError, InvalidInput, NotFound
 from alveary.cube._cache import ChunkCache, IOStats
 from alveary.cube._layout import LevelLayout
 from alveary.cube._manifest import ResolvingStore
-from alveary.cube._meta import CubeMeta, VariableInfo, parse_time
+from alveary.cube._meta import CubeMeta, VariableInfo
 from alveary.cube._plan import ChunkRead, ReadPlan, plan_cells
 from alveary.cube._store import CountingStore, normalize_url, open_store
+from alveary.cube._time import parse_time
 from alveary.cube._versions import POINTER_KEY, VERSIONS, read_manifest, read_pointer
 
-__all__ = ["Cube", "open_cube"]
+__all__ = ["Cube", "CubeVersion", "open_cube"]
 
 # Chunk fetches in flight per read; the store's own connection pool limits further.
 _MAX_INFLIGHT = 32
 
 
-@dataclass(frozen=True, eq=False)
-class _Version:
-    """One opened, immutable version of a cube."""
+class _Described:
+    """What a cube and a cube version share: metadata read from ``meta``, and reads."""
 
-    id: str
-    meta: CubeMeta
-    group: Any  # zarr AsyncGroup with consolidated metadata
-    layouts: dict[int, LevelLayout]
-    arrays: dict[str, Any]
+    def snapshot(self) -> CubeVersion:
+        raise NotImplementedError
+
+    @property
+    def meta(self) -> CubeMeta:
+        raise NotImplementedError
+
+    @property
+    def version(self) -> str:
+        raise NotImplementedError
+
+    @property
+    def id(self) -> str:
+        return self.meta.id
+
+    @property
+    def title(self) -> str:
+        return self.meta.title
+
+    @property
+    def variables(self) -> dict[str, VariableInfo]:
+        return self.meta.variables
+
+    @property
+    def levels(self) -> tuple[int, ...]:
+        return self.meta.levels
+
+    @property
+    def times(self) -> np.ndarray:
+        return self.meta.times
+
+    @property
+    def coverage(self) -> tuple[float, float, float, float]:
+        return self.meta.coverage
+
+    def __repr__(self) -> str:
+        return (
+            f"<{type(self).__name__} {self.id!r} version={self.version} "
+            f"levels={list(self.levels)} variables={sorted(self.variables)} "
+            f"times={self.times.size}>"
+        )
+
+    def read(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        cache: ChunkCache | None = None,
+    ) -> np.ndarray:
+        """Values ``(time, zone)`` as float64; NaN where there is no data."""
+        return sync(self.read_async(variable, zones, start, end, cache))
+
+    async def read_async(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        cache: ChunkCache | None = None,
+    ) -> np.ndarray:
+        """The same as :meth:`read`, awaitable from any event loop."""
+        version = self.snapshot()
+        return await version.execute_async(version.plan(variable, zones, start, end), cache)
 
 
-async def _open_version(store: CountingStore, url: str) -> _Version:
+async def _open_version(store: CountingStore, url: str, cache: ChunkCache | None) -> CubeVersion:
     pointer = await read_pointer(store)
     if pointer is None:
         raise NotFound("cube", url, f"no published cube at {url} (no {POINTER_KEY})")
@@ -59,119 +120,77 @@ async def _open_version(store: CountingStore, url: str) -> _Version:
     except FileNotFoundError:
         raise CubeFormatError("version", vid, "a version that exists in the store") from None
     tarr = await group.getitem("time")
+    if not isinstance(tarr, zarr.AsyncArray):
+        raise CubeFormatError("time", vid, "a time array in the version")
     seconds = await tarr.getitem(slice(None))
     times = np.asarray(seconds, dtype=np.int64).astype("datetime64[s]")
     meta = replace(CubeMeta.from_attrs(dict(group.attrs), times), manifest=manifest)
-    layouts = {lv: LevelLayout(lv, int(times.size), meta.chunks[lv]) for lv in meta.levels}
-    return _Version(vid, meta, group, layouts, {})
+    return CubeVersion(url, vid, meta, group, cache)
 
 
-class Cube:
-    """A published cube, opened at its current version.
+class CubeVersion(_Described):
+    """One published version of a cube, opened: immutable metadata, plans and reads.
+
+    A plan made here is run here: a newer version published meanwhile changes nothing
+    a holder of this object reads (the writer keeps the previous versions for that).
 
     Attributes
     ----------
     url, id, title, version:
-        Where it is, what it is, and the published version being read.
-    variables:
-        ``{name: VariableInfo}`` (units, long_name, dtype, fill_value, ...).
-    levels:
-        The refinement levels present, ascending.
-    times:
-        The time axis, ``datetime64[s]`` (UTC).
-    coverage:
-        ``(west, south, east, north)`` in degrees.
-    stats:
-        :class:`IOStats` of this cube's store requests.
-    cache:
-        The default :class:`ChunkCache` of reads (None: no caching).
+        Where the cube is, its id and title, and this version's id.
+    variables, levels, times, coverage, meta:
+        As in :class:`Cube`.
     """
 
     def __init__(
         self,
         url: str,
-        storage_options: dict | None = None,
-        cache: ChunkCache | None = None,
+        version: str,
+        meta: CubeMeta,
+        group: zarr.AsyncGroup,
+        cache: ChunkCache | None,
     ) -> None:
-        self.url = normalize_url(url)[1]
-        self.storage_options = storage_options
+        self.url = url
+        self._version = version
+        self._meta = meta
         self.cache = cache
-        self.stats = IOStats()
-        self._store = open_store(url, storage_options, read_only=True, stats=self.stats)
-        self._lock = threading.Lock()
-        self._v: _Version = sync(_open_version(self._store, self.url))
+        self._group = group
+        self._layouts = {
+            lv: LevelLayout(lv, int(meta.times.size), meta.chunks[lv]) for lv in meta.levels
+        }
+        self._arrays: dict[str, zarr.AsyncArray[Any]] = {}
 
-    # -- metadata --------------------------------------------------------------------
+    def snapshot(self) -> CubeVersion:
+        """This version itself."""
+        return self
+
     @property
     def meta(self) -> CubeMeta:
-        return self._v.meta
-
-    @property
-    def id(self) -> str:
-        return self._v.meta.id
-
-    @property
-    def title(self) -> str:
-        return self._v.meta.title
+        return self._meta
 
     @property
     def version(self) -> str:
-        return self._v.id
-
-    @property
-    def variables(self) -> dict[str, VariableInfo]:
-        return self._v.meta.variables
-
-    @property
-    def levels(self) -> tuple[int, ...]:
-        return self._v.meta.levels
-
-    @property
-    def times(self) -> np.ndarray:
-        return self._v.meta.times
-
-    @property
-    def coverage(self) -> tuple[float, float, float, float]:
-        return self._v.meta.coverage
-
-    def __repr__(self) -> str:
-        return (
-            f"<Cube {self.id!r} version={self.version} levels={list(self.levels)} "
-            f"variables={sorted(self.variables)} times={self.times.size}>"
-        )
-
-    def refresh(self) -> bool:
-        """Re-read the version pointer; True if a new version is now being read."""
-        pointer = sync(read_pointer(self._store))
-        if pointer is None or pointer.get("version") == self._v.id:
-            return False
-        new = sync(_open_version(self._store, self.url))
-        with self._lock:
-            self._v = new
-        return True
+        return self._version
 
     # -- planning --------------------------------------------------------------------
-    def time_indices(self, start=None, end=None) -> slice:
+    def time_indices(self, start: Any = None, end: Any = None) -> slice:
         """The time steps with ``start <= t <= end`` as a slice (open ends allowed).
 
         ``start`` and ``end`` are datetime64, datetime or RFC 3339 strings.
         """
-        times = self.times.astype(np.int64)
+        times = self.times.astype("datetime64[us]")
         i0, i1 = 0, times.size
-        t0 = t1 = None
-        if start is not None:
-            t0 = parse_time(start, "start").astype(np.int64)
+        t0 = parse_time(start, "start") if start is not None else None
+        t1 = parse_time(end, "end") if end is not None else None
+        if t0 is not None:
             i0 = int(np.searchsorted(times, t0, side="left"))
-        if end is not None:
-            t1 = parse_time(end, "end").astype(np.int64)
+        if t1 is not None:
             i1 = int(np.searchsorted(times, t1, side="right"))
         if t0 is not None and t1 is not None and t1 < t0:
             raise InvalidInput("end", str(end), f"a date-time not before start ({start})")
         return slice(i0, max(i0, i1))
 
     def _level_of(self, zones: np.ndarray) -> int:
-        from alveary import grid
-
         if zones.size == 0:
             return self.levels[-1]
         lv = np.asarray(grid.zone_level(zones))
@@ -204,48 +223,28 @@ class Cube:
             )
         return info
 
-    def _plan(self, v: _Version, variable, zones, start, end) -> ReadPlan:
-        from alveary import grid
-
+    def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
+        """The chunks a read would fetch, without any I/O (see :class:`ReadPlan`)."""
         info = self._variable(variable)
-        zones = np.atleast_1d(np.asarray(zones)).ravel()
-        if zones.size and zones.dtype.kind not in "ui":
-            raise GridError("zones", zones.dtype.name, "integer zone ids")
-        zones = zones.astype(np.uint64)
-        level = self._level_of(zones)
+        ids = np.atleast_1d(np.asarray(zones)).ravel()
+        if ids.size and ids.dtype.kind not in "ui":
+            raise GridError("zones", ids.dtype.name, "integer zone ids")
+        ids = ids.astype(np.uint64)
+        level = self._level_of(ids)
         tsel = self.time_indices(start, end)
-        if zones.size:
-            _, region, i, j = grid.zone_to_index(zones)
+        if ids.size:
+            _, region, i, j = grid.zone_to_index(ids)
         else:
             region = i = j = np.zeros(0, dtype=np.int64)
         return plan_cells(
-            v.layouts[level], f"{variable}/{level}", region, i, j, tsel, info.itemsize, variable
+            self._layouts[level], f"{variable}/{level}", region, i, j, tsel, info.itemsize, variable
         )
 
-    def plan(self, variable: str, zones, start=None, end=None) -> ReadPlan:
-        """The chunks a read would fetch, without any I/O (see :class:`ReadPlan`)."""
-        return self._plan(self._v, variable, zones, start, end)
-
     # -- reading ---------------------------------------------------------------------
-    def read(self, variable: str, zones, start=None, end=None, cache=None) -> np.ndarray:
-        """Values ``(time, zone)`` as float64; NaN where there is no data."""
-        v = self._v
-        plan = self._plan(v, variable, zones, start, end)
-        return sync(self._execute(v, plan, cache))
-
-    async def read_async(
-        self, variable: str, zones, start=None, end=None, cache=None
-    ) -> np.ndarray:
-        """The same as :meth:`read`, awaitable from any event loop."""
-        v = self._v
-        plan = self._plan(v, variable, zones, start, end)
-        return await self.execute_async(plan, cache, _version=v)
-
-    async def execute_async(self, plan: ReadPlan, cache=None, _version=None) -> np.ndarray:
+    async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
         """Run a plan made by :meth:`plan` (on zarr's I/O loop, awaited from any loop)."""
-        v = _version or self._v
         loop = _get_loop()
-        coro = self._execute(v, plan, cache)
+        coro = self._execute(plan, cache)
         try:
             running = asyncio.get_running_loop()
         except RuntimeError:
@@ -254,40 +253,115 @@ class Cube:
             return await coro
         return await asyncio.wrap_future(asyncio.run_coroutine_threadsafe(coro, loop))
 
-    async def _array(self, v: _Version, path: str):
-        arr = v.arrays.get(path)
+    async def _array(self, path: str) -> zarr.AsyncArray[Any]:
+        arr = self._arrays.get(path)
         if arr is None:
-            arr = await v.group.getitem(path)
-            v.arrays[path] = arr
+            found = await self._group.getitem(path)
+            if not isinstance(found, zarr.AsyncArray):
+                raise CubeFormatError("array", path, "an array of the cube version")
+            arr = self._arrays[path] = found
         return arr
 
-    async def _execute(self, v: _Version, plan: ReadPlan, cache) -> np.ndarray:
+    async def _execute(self, plan: ReadPlan, cache: ChunkCache | None) -> np.ndarray:
         cache = cache if cache is not None else self.cache
-        info = v.meta.variables[plan.variable]
+        info = self.meta.variables[plan.variable]
         out = np.full(plan.shape, np.nan, dtype=np.float64)
         if not plan.reads or plan.nzones == 0:
             return out
         sem = asyncio.Semaphore(_MAX_INFLIGHT)
 
         async def one(cr: ChunkRead) -> None:
-            key = (self.url, v.id, cr.array, cr.coords)
+            key = (self.url, self.version, cr.array, cr.coords)
             data = cache.get(key) if cache is not None else None
             if data is None:
-                arr = await self._array(v, cr.array)
+                arr = await self._array(cr.array)
                 async with sem:
-                    data = await arr.getitem(cr.selection)
-                data = np.asarray(data)
+                    data = np.asarray(await arr.getitem(cr.selection))
                 if cache is not None:
                     cache.put(key, data)
-            raw = data[(cr.in_time, *cr.cells)]
+            where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+            raw = data[where]
             out[cr.out_time, cr.columns] = info.decode(raw)
 
         await asyncio.gather(*(one(cr) for cr in plan.reads))
         return out
 
 
+class Cube(_Described):
+    """A published cube, opened at its current version; :meth:`refresh` moves it on.
+
+    Metadata, plans and reads go to the current :class:`CubeVersion`; hold on to
+    :meth:`snapshot` to plan and read against one version however often it refreshes.
+
+    Attributes
+    ----------
+    url, id, title, version:
+        Where it is, what it is, and the published version being read.
+    variables:
+        ``{name: VariableInfo}`` (units, long_name, dtype, fill_value, ...).
+    levels:
+        The refinement levels present, ascending.
+    times:
+        The time axis, ``datetime64[s]`` (UTC).
+    coverage:
+        ``(west, south, east, north)`` in degrees.
+    stats:
+        :class:`IOStats` of this cube's store requests.
+    cache:
+        The default :class:`ChunkCache` of reads (None: no caching).
+    """
+
+    def __init__(
+        self,
+        url: str,
+        storage_options: dict[str, Any] | None = None,
+        cache: ChunkCache | None = None,
+    ) -> None:
+        self.url = normalize_url(url)[1]
+        self.storage_options = storage_options
+        self.cache = cache
+        self.stats = IOStats()
+        self._store = open_store(url, storage_options, read_only=True, stats=self.stats)
+        self._lock = threading.Lock()
+        self._v: CubeVersion = sync(_open_version(self._store, self.url, cache))
+
+    def snapshot(self) -> CubeVersion:
+        """The version served now, fixed: plans and reads on it never see a newer one."""
+        return self._v
+
+    @property
+    def meta(self) -> CubeMeta:
+        return self._v.meta
+
+    @property
+    def version(self) -> str:
+        return self._v.version
+
+    def refresh(self) -> bool:
+        """Re-read the version pointer; True if a new version is now being read."""
+        pointer = sync(read_pointer(self._store))
+        if pointer is None or pointer.get("version") == self._v.version:
+            return False
+        new = sync(_open_version(self._store, self.url, self.cache))
+        with self._lock:
+            self._v = new
+        return True
+
+    def time_indices(self, start: Any = None, end: Any = None) -> slice:
+        """:meth:`CubeVersion.time_indices` of the current version."""
+        return self._v.time_indices(start, end)
+
+    def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
+        """:meth:`CubeVersion.plan` of the current version (no I/O)."""
+        return self._v.plan(variable, zones, start, end)
+
+    async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
+        """Run a plan on the current version (plan on :meth:`snapshot` to pin one)."""
+        return await self._v.execute_async(plan, cache)
+
+
 def open_cube(
-    url: str, storage_options: dict | None = None, cache: ChunkCache | None = None
+    url: str, storage_options: dict[str, Any] | None = None, cache: ChunkCache | None = None
 ) -> Cube:
     """Open the published cube at ``url`` (local path, file://, s3://, memory://).
 

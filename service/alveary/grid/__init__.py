@@ -35,6 +35,7 @@ from alveary.grid._api import (
 )
 from alveary.grid._authalic import EARTH_AREA, R_AUTHALIC
 from alveary.grid._ids import MAX_LEVEL
+from alveary.grid._window import disk_union, disk_windows
 
 __all__ = [
     "EARTH_AREA",
@@ -42,6 +43,8 @@ __all__ = [
     "PENTAGON_SHARE",
     "R_AUTHALIC",
     "all_zones",
+    "disk_union",
+    "disk_windows",
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import sys
 from typing import Any
 
@@ -90,8 +89,7 @@ def _version_parsers(subparsers: Any) -> None:
 
 
 def register(subparsers: Any) -> None:
-    """Add ``ingest``, ``versions``, ``rollback``, ``build-demo`` (and ``demo`` if no other
-    layer provides it)."""
+    """Add ``ingest``, ``versions``, ``rollback`` and ``build-demo``."""
     _ingest_parser(subparsers)
     _version_parsers(subparsers)
     b = subparsers.add_parser(
@@ -102,13 +100,6 @@ def register(subparsers: Any) -> None:
     b.add_argument("--store", default=None, help="store directory (default var/cubes)")
     b.add_argument("--force", action="store_true", help="rebuild even if it exists")
     b.set_defaults(handler=_build_demo)
-
-    if importlib.util.find_spec("alveary.api._cli") is None:
-        d = subparsers.add_parser("demo", help="build the demo cube, then serve it")
-        d.add_argument("--store", default=None)
-        d.add_argument("--build-only", action="store_true", help="build, do not serve")
-        d.add_argument("--force", action="store_true")
-        d.set_defaults(handler=_demo)
 
 
 def _ingest(args: argparse.Namespace) -> int:
@@ -169,14 +160,3 @@ def _build_demo(args: argparse.Namespace) -> int:
     summary = getattr(build_demo, "last_summary", None)
     print(summary.text() if summary is not None else f"demo cube already built at {url}")
     return 0
-
-
-def _demo(args: argparse.Namespace) -> int:
-    _build_demo(args)
-    if args.build_only:
-        return 0
-    try:
-        from alveary.api._cli import serve_demo
-    except ImportError:
-        return 0
-    return int(serve_demo(args.store) or 0)

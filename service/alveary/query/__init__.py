@@ -1,13 +1,15 @@
 """Queries over cubes: validated requests, pure plans, the executor and statistics.
 
 No HTTP here. A request is parsed into a query object (``PointQuery``, ``DiskQuery``, ...),
-bound to a cube version by :func:`resolve` (no I/O; its ``key`` is the normalised query),
-turned into zones and chunk keys by :func:`make_plan` (no I/O; limits checked), and read
-by :func:`execute`, the only step that touches a store.
+bound to one version of a cube by :func:`resolve` (no I/O; its ``key`` is the normalised
+query), turned into zones and chunk keys by :func:`make_plan` (no I/O; limits checked), and
+read by :func:`execute`, the only step that touches a store. What the layer needs of a cube
+is written down as the protocols :class:`ServedCube` and :class:`CubeSnapshot`.
 """
 
 from alveary.query._catalog import Catalog, CubeSource
-from alveary.query._execute import execute, zone_areas
+from alveary.query._cube import CubeSnapshot, ServedCube
+from alveary.query._execute import execute
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
 from alveary.query._models import (
     BboxQuery,
@@ -20,9 +22,10 @@ from alveary.query._models import (
     Selection,
     check_lat_lon,
     parse_vars,
+    parse_zone,
 )
 from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
-from alveary.query._result import StatsResult, VariableInfo, ZoneResult
+from alveary.query._result import ResultVariable, StatsResult, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
 
@@ -31,6 +34,7 @@ __all__ = [
     "Area",
     "BboxQuery",
     "Catalog",
+    "CubeSnapshot",
     "CubeSource",
     "DiskQuery",
     "Limits",
@@ -41,10 +45,11 @@ __all__ = [
     "Query",
     "RadiusQuery",
     "Resolved",
+    "ResultVariable",
     "Selection",
+    "ServedCube",
     "StatsResult",
     "TimeSpec",
-    "VariableInfo",
     "ZoneResult",
     "bbox_area",
     "check_lat_lon",
@@ -56,8 +61,8 @@ __all__ = [
     "parse_polygon",
     "parse_stats",
     "parse_vars",
+    "parse_zone",
     "resolve",
     "select_times",
-    "zone_areas",
     "zone_statistics",
 ]

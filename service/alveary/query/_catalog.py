@@ -10,11 +10,13 @@ from __future__ import annotations
 import logging
 import threading
 import time
-from collections.abc import Callable, Iterable
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any
 
 from alveary._errors import NotFound, StoreUnavailable
+from alveary.cube import open_cube
+from alveary.query._cube import ServedCube
 from alveary.query._failures import as_domain_error
 
 __all__ = ["Catalog", "CubeSource"]
@@ -36,16 +38,10 @@ class CubeSource:
     storage_options: dict[str, Any] | None = field(default=None, repr=False)
 
 
-def _default_opener(url: str, storage_options: dict[str, Any] | None) -> Any:
-    from alveary.cube import open_cube
-
-    return open_cube(url, storage_options=storage_options)
-
-
 @dataclass
 class _Entry:
     source: CubeSource
-    cube: Any = None
+    cube: ServedCube | None = None
     error: str | None = None
     checked: float = 0.0
 
@@ -56,17 +52,11 @@ class Catalog:
     Parameters
     ----------
     sources:
-        The configured cubes. Ids must be unique.
-    opener:
-        ``opener(url, storage_options) -> cube``; defaults to :func:`alveary.cube.open_cube`.
+        The configured cubes (opened with :func:`alveary.cube.open_cube`). Ids must be
+        unique.
     """
 
-    def __init__(
-        self,
-        sources: Iterable[CubeSource],
-        opener: Callable[[str, dict[str, Any] | None], Any] | None = None,
-    ) -> None:
-        self._opener = opener or _default_opener
+    def __init__(self, sources: Iterable[CubeSource]) -> None:
         self._entries: dict[str, _Entry] = {}
         self._lock = threading.Lock()
         for source in sources:
@@ -87,7 +77,7 @@ class Catalog:
 
     def _open(self, entry: _Entry) -> None:
         try:
-            cube = self._opener(entry.source.url, entry.source.storage_options)
+            cube = open_cube(entry.source.url, storage_options=entry.source.storage_options)
         except Exception as exc:
             entry.error = type(as_domain_error(exc, "cube metadata")).__name__
             log.warning("cube %s could not be opened: %s", entry.source.id, exc)
@@ -103,7 +93,7 @@ class Catalog:
                     self._open(entry)
             return {k: e.error for k, e in self._entries.items()}
 
-    def get(self, cube_id: str) -> Any:
+    def get(self, cube_id: str) -> ServedCube:
         """The open cube with this id.
 
         Raises
@@ -121,7 +111,7 @@ class Catalog:
             raise StoreUnavailable(f"the store of cube {cube_id!r} cannot be reached")
         return cube
 
-    def cubes(self) -> list[tuple[CubeSource, Any]]:
+    def cubes(self) -> list[tuple[CubeSource, ServedCube | None]]:
         """(source, cube or None) for every configured cube."""
         return [(e.source, e.cube) for e in self._entries.values()]
 

@@ -8,53 +8,32 @@ columnar :class:`ZoneResult` or, for area statistics, :class:`StatsResult`.
 from __future__ import annotations
 
 import asyncio
-from typing import Any
 
 import numpy as np
 
 from alveary import grid
 from alveary._errors import DeadlineExceeded
+from alveary.cube import ChunkCache
 from alveary.query._failures import as_domain_error
+from alveary.query._models import RadiusQuery
 from alveary.query._plan import Plan
 from alveary.query._result import StatsResult, ZoneResult
 from alveary.query._stats import zone_statistics
 
-__all__ = ["execute", "zone_areas"]
+__all__ = ["execute"]
 
 
-def zone_areas(zones: np.ndarray, level: int) -> np.ndarray:
-    """Area in m² of each zone (hexagons ``zone_area(level)``, pentagons 5/6 of it).
-
-    >>> a = zone_areas(grid.all_zones(1), 1)
-    >>> round(float(a.sum()) / 1e12, 3)  # the whole Earth, 510.066 million km²
-    510.066
-    """
-    zones = np.asarray(zones, dtype=np.uint64)
-    full = grid.zone_area(level)
-    if zones.size == 0:
-        return np.zeros(0)
-    return np.where(grid.is_pentagon(zones), full * 5.0 / 6.0, full)
-
-
-async def _read_all(plan: Plan, cache: Any) -> dict[str, np.ndarray]:
+async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarray]:
     r = plan.resolved
     steps = r.t1 - r.t0
     n = plan.read_zones.size
     if steps == 0 or n == 0:
         return {v: np.full((steps, n), np.nan) for v in r.variables}
-    times = r.times
-    start, end = times[0], times[-1]
-
-    cube = r.cube
-    # Run the plan made without I/O as it is, unless the cube moved to a new version since.
-    same = hasattr(cube, "execute_async") and str(cube.version) == r.version
 
     async def one(var: str) -> np.ndarray:
+        # The plan runs on the version it was made from (r.cube is that snapshot).
         try:
-            if same and var in plan.reads:
-                out = await cube.execute_async(plan.reads[var], cache)
-            else:
-                out = await cube.read_async(var, plan.read_zones, start, end, cache=cache)
+            out = await r.cube.execute_async(plan.reads[var], cache)
         except Exception as exc:
             raise as_domain_error(exc, f"chunks of {var!r}") from exc
         return np.asarray(out, dtype=np.float64).reshape(steps, n)
@@ -64,7 +43,7 @@ async def _read_all(plan: Plan, cache: Any) -> dict[str, np.ndarray]:
 
 
 async def execute(
-    plan: Plan, cache: Any, *, deadline: float | None = None
+    plan: Plan, cache: ChunkCache | None, *, deadline: float | None = None
 ) -> ZoneResult | StatsResult:
     """Read what a plan names and assemble the result.
 
@@ -77,41 +56,38 @@ async def execute(
     deadline:
         Seconds the reads may take; past it :class:`DeadlineExceeded` is raised.
     """
-    r = plan.resolved
     try:
         async with asyncio.timeout(deadline):
             values = await _read_all(plan, cache)
     except TimeoutError:
         raise DeadlineExceeded(f"the request ran past its deadline of {deadline} s") from None
-    info = r.variable_info()
     if plan.stats:
-        areas = zone_areas(plan.read_zones, r.level)
-        stats = {v: zone_statistics(values[v], areas, plan.stats) for v in r.variables}
-        return StatsResult(
-            r.cube_id,
-            r.version,
-            r.level,
-            info,
-            r.times,
-            int(plan.read_zones.size),
-            float(areas.sum()),
-            plan.stats,
-            stats,
-        )
+        return _statistics(plan, values)
+    return _zone_values(plan, values)
+
+
+def _statistics(plan: Plan, values: dict[str, np.ndarray]) -> StatsResult:
+    """Area-weighted statistics per time step over the plan's zones."""
+    r = plan.resolved
+    areas = grid.zone_areas(plan.read_zones)
+    stats = {v: zone_statistics(values[v], areas, plan.stats) for v in r.variables}
+    zone_count, area = int(plan.read_zones.size), float(areas.sum())
+    info = r.variable_info()
+    return StatsResult(
+        r.cube_id, r.version, r.level, info, r.times, zone_count, area, plan.stats, stats
+    )
+
+
+def _zone_values(plan: Plan, values: dict[str, np.ndarray]) -> ZoneResult:
+    """One answer row per zone (or per point, for multi-point queries)."""
+    r = plan.resolved
     if plan.take is not None:
         values = {v: a[:, plan.take] for v, a in values.items()}
+    info, extra = r.variable_info(), dict(plan.extra)
     result = ZoneResult(
-        r.cube_id,
-        r.version,
-        r.level,
-        info,
-        r.times,
-        plan.zones,
-        values,
-        dict(plan.extra),
-        r.query.op,
+        r.cube_id, r.version, r.level, info, r.times, plan.zones, values, extra, r.query.op
     )
-    if getattr(r.query, "nearest", False):
+    if isinstance(r.query, RadiusQuery) and r.query.nearest:
         result = _nearest_with_data(result)
     return result
 

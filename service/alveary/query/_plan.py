@@ -10,13 +10,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 
 from alveary import grid
 from alveary._errors import InvalidInput, LimitExceeded
+from alveary.cube import ReadPlan
 from alveary.query._catalog import Catalog
+from alveary.query._cube import CubeSnapshot
 from alveary.query._geometry import bbox_area
 from alveary.query._models import (
     BboxQuery,
@@ -26,9 +27,8 @@ from alveary.query._models import (
     PolygonQuery,
     Query,
     RadiusQuery,
-    check_lat_lon,
 )
-from alveary.query._result import VariableInfo
+from alveary.query._result import ResultVariable
 from alveary.query._time import select_times
 
 __all__ = ["Limits", "Plan", "Resolved", "make_plan", "resolve"]
@@ -46,18 +46,16 @@ class Limits:
     max_read_bytes: int = 2_000_000_000
 
 
-def _meta(value: Any, name: str) -> str:
-    if isinstance(value, dict):
-        return str(value.get(name) or "")
-    return str(getattr(value, name, "") or "")
-
-
 @dataclass(frozen=True)
 class Resolved:
-    """A query bound to one cube version: level, variables and time-step range fixed."""
+    """A query bound to one cube version: level, variables and time-step range fixed.
+
+    ``cube`` is that version (a snapshot): the plan and the reads use it, whatever the
+    catalogue serves by then.
+    """
 
     cube_id: str
-    cube: Any = field(repr=False)
+    cube: CubeSnapshot = field(repr=False)
     version: str
     level: int
     variables: tuple[str, ...]
@@ -67,7 +65,7 @@ class Resolved:
 
     @property
     def times(self) -> np.ndarray:
-        return np.asarray(self.cube.times)[self.t0 : self.t1]
+        return self.cube.times[self.t0 : self.t1]
 
     @property
     def key(self) -> str:
@@ -84,12 +82,9 @@ class Resolved:
             ]
         )
 
-    def variable_info(self) -> dict[str, VariableInfo]:
+    def variable_info(self) -> dict[str, ResultVariable]:
         meta = self.cube.variables
-        return {
-            v: VariableInfo(v, _meta(meta[v], "units"), _meta(meta[v], "long_name"))
-            for v in self.variables
-        }
+        return {v: ResultVariable(v, meta[v].units, meta[v].long_name) for v in self.variables}
 
 
 def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
@@ -102,7 +97,7 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
     InvalidInput
         A level the cube does not hold, an unknown variable, an instant before the time axis.
     """
-    cube = catalog.get(cube_id)
+    cube = catalog.get(cube_id).snapshot()
     sel = query.selection
     levels = tuple(int(v) for v in cube.levels)
     if sel.level is None:
@@ -125,7 +120,7 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
             raise InvalidInput("vars", unknown[0], f"variables of this cube: {', '.join(names)}")
         variables = sel.variables
     t0, t1 = select_times(sel.time, np.asarray(cube.times))
-    return Resolved(cube_id, cube, str(cube.version), level, variables, t0, t1, query)
+    return Resolved(cube_id, cube, cube.version, level, variables, t0, t1, query)
 
 
 def _zone_level(zone: int, levels: tuple[int, ...]) -> int:
@@ -144,8 +139,8 @@ class Plan:
 
     ``zones`` are the rows of the answer (they may repeat for multi-point queries);
     ``read_zones`` the distinct zones read; ``take`` maps rows to ``read_zones``;
-    ``chunks`` variable -> chunk keys; ``max_bytes`` the most that will be read;
-    ``reads`` variable -> the cube's own read plan, which the executor runs as it is.
+    ``reads`` variable -> the cube version's own read plan, which the executor runs as
+    it is; ``max_bytes`` the most that will be read.
     """
 
     resolved: Resolved
@@ -153,14 +148,24 @@ class Plan:
     read_zones: np.ndarray
     take: np.ndarray | None
     extra: dict[str, np.ndarray]
-    chunks: dict[str, list[Any]]
     max_bytes: int
     stats: tuple[str, ...] = ()
-    reads: dict[str, Any] = field(default_factory=dict, repr=False)
+    reads: dict[str, ReadPlan] = field(default_factory=dict, repr=False)
 
     @property
     def chunk_count(self) -> int:
-        return sum(len(v) for v in self.chunks.values())
+        return sum(len(r) for r in self.reads.values())
+
+    @property
+    def nbytes(self) -> int:
+        """An estimate of the memory the plan holds: its arrays plus per-object overheads."""
+        total = 4096 + self.zones.nbytes + self.read_zones.nbytes
+        total += 0 if self.take is None else self.take.nbytes
+        total += sum(a.nbytes for a in self.extra.values())
+        for read_plan in self.reads.values():
+            for chunk in read_plan.reads:
+                total += 512 + chunk.columns.nbytes + sum(c.nbytes for c in chunk.cells)
+        return int(total)
 
 
 def _check(limit: str, requested: float, maximum: float, approximate: bool = False) -> None:
@@ -183,21 +188,18 @@ def _precheck_area(area_m2: float, level: int, limits: Limits) -> None:
 def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     q, level = resolved.query, resolved.level
     if isinstance(q, PointQuery):
-        check_lat_lon(q.lat, q.lon)
         return np.atleast_1d(grid.point_to_zone(q.lat, q.lon, level)).astype(np.uint64), {}
     if isinstance(q, DiskQuery):
         _check("k", q.k, limits.max_k)
         _check("zones per request", 3 * q.k * (q.k + 1) + 1, limits.max_zones)
         if q.zone is not None:
-            centre = np.uint64(q.zone)
+            centre = np.asarray(q.zone, dtype=np.uint64)
         else:
-            check_lat_lon(q.lat, q.lon)
             centre = grid.point_to_zone(q.lat, q.lon, level)
         ids, steps = grid.zone_disk(centre, q.k, return_steps=True)
         order = np.lexsort((ids, steps))
         return ids[order], {"steps": np.asarray(steps)[order].astype(np.int32)}
     if isinstance(q, RadiusQuery):
-        check_lat_lon(q.lat, q.lon)
         _precheck_area(math.pi * q.meters**2, level, limits)
         ids, dist = grid.zones_in_radius(q.lat, q.lon, q.meters, level, return_distance=True)
         order = np.lexsort((ids, dist))
@@ -233,22 +235,13 @@ def make_plan(resolved: Resolved, limits: Limits) -> Plan:
     _check("zones per request", int(read_zones.size), limits.max_zones)
     steps = resolved.t1 - resolved.t0
     _check("time steps × zones", steps * int(read_zones.size), limits.max_cells)
-    chunks: dict[str, list[Any]] = {}
-    reads: dict[str, Any] = {}
-    total = 0
+    reads: dict[str, ReadPlan] = {}
     if steps and read_zones.size:
         times = resolved.times
         start, end = times[0], times[-1]
         for var in resolved.variables:
             reads[var] = resolved.cube.plan(var, read_zones, start, end)
-            keys, nbytes = _chunk_plan(reads[var])
-            chunks[var] = keys
-            total += nbytes
+    total = sum(r.max_bytes for r in reads.values())
     _check("bytes read per request", total, limits.max_read_bytes)
-    stats = getattr(resolved.query, "stats", ())
-    return Plan(resolved, zones, read_zones, take, extra, chunks, total, stats, reads)
-
-
-def _chunk_plan(plan: Any) -> tuple[list[Any], int]:
-    """(chunk keys, max bytes) of a cube read plan."""
-    return list(plan.keys), int(plan.max_bytes)
+    stats = resolved.query.stats if isinstance(resolved.query, BboxQuery | PolygonQuery) else ()
+    return Plan(resolved, zones, read_zones, take, extra, total, stats, reads)

@@ -6,12 +6,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-__all__ = ["StatsResult", "VariableInfo", "ZoneResult"]
+__all__ = ["ResultVariable", "StatsResult", "ZoneResult"]
 
 
 @dataclass(frozen=True)
-class VariableInfo:
-    """A variable's name and CF-style metadata."""
+class ResultVariable:
+    """A variable of a result: its name and the CF attributes every format carries.
+
+    (The cube's :class:`alveary.cube.VariableInfo` also knows how it is stored.)
+    """
 
     name: str
     units: str = ""
@@ -39,7 +42,7 @@ class ZoneResult:
     cube: str
     version: str
     level: int
-    variables: dict[str, VariableInfo]
+    variables: dict[str, ResultVariable]
     times: np.ndarray
     zones: np.ndarray
     values: dict[str, np.ndarray]
@@ -64,7 +67,7 @@ class StatsResult:
     cube: str
     version: str
     level: int
-    variables: dict[str, VariableInfo]
+    variables: dict[str, ResultVariable]
     times: np.ndarray
     zone_count: int
     area_m2: float

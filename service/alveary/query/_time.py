@@ -8,13 +8,12 @@ selected.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
-from datetime import UTC, datetime
 
 import numpy as np
 
 from alveary._errors import InvalidInput
+from alveary.cube import parse_time
 
 __all__ = ["TimeSpec", "format_time", "parse_datetime", "select_times"]
 
@@ -22,10 +21,6 @@ _PARAM = "datetime"
 _ALLOWED = (
     "an RFC 3339 instant such as 2024-05-01T00:00:00Z, or an interval start/end "
     "with '..' for an open end"
-)
-_DATE_TIME = re.compile(
-    r"^(\d{4})-(\d{2})-(\d{2})"
-    r"(?:[Tt ](\d{2}):(\d{2}):(\d{2})(\.\d{1,9})?([Zz]|[+-]\d{2}:\d{2})?)?$"
 )
 
 
@@ -55,20 +50,10 @@ class TimeSpec:
 
 
 def _parse_instant(text: str, whole: str) -> np.datetime64:
-    m = _DATE_TIME.match(text.strip())
-    if not m:
-        raise InvalidInput(_PARAM, whole, _ALLOWED)
-    year, month, day, hh, mm, ss, frac, zone = m.groups()
     try:
-        if hh is None:
-            moment = datetime(int(year), int(month), int(day), tzinfo=UTC)
-        else:
-            tz = "+00:00" if zone in (None, "Z", "z") else zone
-            iso = f"{year}-{month}-{day}T{hh}:{mm}:{ss}{(frac or '')[:7]}{tz}"
-            moment = datetime.fromisoformat(iso).astimezone(UTC)
-    except ValueError:
+        return parse_time(text.strip(), _PARAM)
+    except InvalidInput:
         raise InvalidInput(_PARAM, whole, _ALLOWED) from None
-    return np.datetime64(moment.replace(tzinfo=None), "us")
 
 
 def parse_datetime(text: str | None) -> TimeSpec:
@@ -134,7 +119,7 @@ def select_times(spec: TimeSpec, times: np.ndarray) -> tuple[int, int]:
     axis = times.astype("datetime64[us]")
     if spec.kind == "latest":
         return (n - 1, n)
-    if spec.kind == "instant":
+    if spec.kind == "instant" and spec.start is not None:
         i = int(np.searchsorted(axis, spec.start, side="right")) - 1
         if i < 0:
             first = format_time(times[:1])[0]

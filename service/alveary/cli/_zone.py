@@ -4,11 +4,16 @@ from __future__ import annotations
 
 import argparse
 import json
+from typing import Any
 
 import numpy as np
 
+from alveary import grid
 
-def register(subparsers: argparse._SubParsersAction) -> None:
+__all__ = ["register", "zone_facts"]
+
+
+def register(subparsers: Any) -> None:
     p = subparsers.add_parser(
         "zone",
         help="print the zone under a point: id, text form, centre, boundary, area",
@@ -16,26 +21,25 @@ def register(subparsers: argparse._SubParsersAction) -> None:
     )
     p.add_argument("--lat", type=float, required=True, help="latitude, degrees [-90, 90]")
     p.add_argument("--lon", type=float, required=True, help="longitude, degrees")
-    p.add_argument("--level", type=int, required=True, help="refinement level [0, 24]")
+    p.add_argument(
+        "--level", type=int, required=True, help=f"refinement level [0, {grid.MAX_LEVEL}]"
+    )
     p.add_argument("--json", action="store_true", help="print JSON instead of text")
     p.set_defaults(handler=_run)
 
 
-def zone_facts(lat: float, lon: float, level: int) -> dict:
-    from alveary import grid
-
+def zone_facts(lat: float, lon: float, level: int) -> dict[str, Any]:
+    """What the grid says about the zone under a point, as a JSON-ready dict."""
     zone = grid.point_to_zone(lat, lon, level)
     clat, clon = grid.zone_to_point(zone)
-    pentagon = bool(grid.is_pentagon(zone))
-    area = grid.zone_area(level) * (5.0 / 6.0 if pentagon else 1.0)
     return {
         "zone": int(zone),
         "text": str(grid.zone_to_text(zone)),
         "level": level,
-        "pentagon": pentagon,
+        "pentagon": bool(grid.is_pentagon(zone)),
         "centre": {"lat": float(clat), "lon": float(clon)},
         "boundary": [[float(a), float(b)] for a, b in np.asarray(grid.zone_boundary(zone))],
-        "area_m2": area,
+        "area_m2": float(grid.zone_areas(zone)),
     }
 
 

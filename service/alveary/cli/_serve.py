@@ -1,23 +1,34 @@
-"""``alveary serve`` and ``alveary demo``."""
+"""``alveary serve`` and ``alveary demo``: the HTTP layer under uvicorn, and the demo cube.
+
+With more than one worker, uvicorn starts each worker process anew and the workers build
+their settings themselves, from the same places the parent read them: the ALVEARY_*
+variables, the TOML file named by ``--config`` (which holds the stores' credentials) and
+the command-line options, which are handed down as JSON in one environment variable.
+Nothing from the cube list, so no credential, is ever copied into the environment.
+"""
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
 import sys
 from pathlib import Path
 from typing import Any
 
-from pydantic import ValidationError
+import uvicorn
+from fastapi import FastAPI
 
-from alveary._errors import InvalidInput
+from alveary.api import create_app, default_store, load_settings, scan_store
+from alveary.ingest import build_demo
 
-__all__ = ["register", "serve", "serve_demo"]
+__all__ = ["register", "serve", "serve_demo", "worker_app"]
 
-_SETTINGS_ENV = "ALVEARY_SETTINGS_JSON"
+#: Where worker processes find the command-line options (paths and numbers only).
+OPTIONS_ENV = "ALVEARY_SERVE_OPTIONS"
 
 # (option, settings field, type, help)
-_OPTIONS: tuple[tuple[str, str, Any, str], ...] = (
+_OPTIONS: tuple[tuple[str, str, type, str], ...] = (
     ("--host", "host", str, "interface to listen on (default 127.0.0.1)"),
     ("--port", "port", int, "port (default 8000)"),
     ("--workers", "workers", int, "worker processes (default 1)"),
@@ -35,6 +46,7 @@ _OPTIONS: tuple[tuple[str, str, Any, str], ...] = (
     ("--max-body-bytes", "max_body_bytes", int, "limit: request body size, bytes"),
     ("--log-level", "log_level", str, "uvicorn log level (default info)"),
 )
+_KEYS = (*(dest for _, dest, _, _ in _OPTIONS), "cors_origins", "config", "store")
 
 
 def _add_options(p: argparse.ArgumentParser) -> None:
@@ -80,84 +92,61 @@ def register(subparsers: Any) -> None:
 
 
 def _overrides(args: argparse.Namespace) -> dict[str, Any]:
-    keys = [dest for _, dest, _, _ in _OPTIONS] + ["cors_origins", "config", "store"]
-    return {k: getattr(args, k) for k in keys if getattr(args, k, None) is not None}
-
-
-def _settings(overrides: dict[str, Any]) -> Any:
-    from alveary.api._settings import Settings
-
-    try:
-        return Settings(**overrides)
-    except ValidationError as exc:
-        first = exc.errors()[0]
-        cause = (first.get("ctx") or {}).get("error")
-        if isinstance(cause, InvalidInput):
-            raise cause from None
-        where = ".".join(str(p) for p in first.get("loc", ())) or "settings"
-        raise InvalidInput(where, first.get("input"), str(first.get("msg"))) from None
+    return {k: getattr(args, k) for k in _KEYS if getattr(args, k, None) is not None}
 
 
 def serve(overrides: dict[str, Any]) -> int:
-    """Validate settings and run uvicorn (blocks until the server stops)."""
-    import uvicorn
+    """Validate settings and run uvicorn (blocks until the server stops).
 
-    settings = _settings(overrides)
+    ``overrides`` are command-line options (names of :class:`alveary.api.Settings`).
+    """
+    settings = load_settings(overrides)
     if settings.config is None and settings.store is None:
         return serve_demo(None, overrides)
     if not settings.sources():
         where = settings.config or settings.store_dir()
         print(f"alveary serve: warning: no cubes found in {where}", file=sys.stderr)
     if settings.workers == 1:
-        from alveary.api._app import create_app
-
-        uvicorn.run(
-            create_app(settings),
-            host=settings.host,
-            port=settings.port,
-            log_level=settings.log_level,
-            proxy_headers=False,
-        )
-        return 0
-    os.environ[_SETTINGS_ENV] = settings.model_dump_json()
+        app: FastAPI | str = create_app(settings)
+    else:
+        os.environ[OPTIONS_ENV] = options_json(overrides)
+        app = f"{__name__}:worker_app"
     uvicorn.run(
-        "alveary.api._cli:app_from_settings_env",
-        factory=True,
+        app,
+        factory=settings.workers > 1,
+        workers=settings.workers,
         host=settings.host,
         port=settings.port,
-        workers=settings.workers,
         log_level=settings.log_level,
         proxy_headers=False,
     )
     return 0
 
 
-def app_from_settings_env() -> Any:
-    """uvicorn factory for worker processes: settings passed by the parent as JSON."""
-    from alveary.api._app import create_app
-    from alveary.api._settings import Settings
+def options_json(overrides: dict[str, Any]) -> str:
+    """The command-line options as JSON for worker processes (only the known options).
 
-    raw = os.environ.get(_SETTINGS_ENV)
-    settings = Settings.model_validate_json(raw) if raw else Settings()
-    return create_app(settings)
+    >>> options_json({"store": Path("/srv/cubes"), "max_zones": 10, "cubes": ["x"]})
+    '{"store": "/srv/cubes", "max_zones": 10}'
+    """
+    return json.dumps({k: v for k, v in overrides.items() if k in _KEYS}, default=str)
 
 
-def serve_demo(
-    url: str | os.PathLike | None = None, overrides: dict[str, Any] | None = None
-) -> int:
+def worker_app() -> FastAPI:
+    """uvicorn factory in a worker process: settings read as the parent read them."""
+    return create_app(load_settings(json.loads(os.environ.get(OPTIONS_ENV, "{}"))))
+
+
+def serve_demo(url: str | os.PathLike[str] | None, overrides: dict[str, Any]) -> int:
     """Build the demo cube under the store directory ``url`` if it is missing, then serve it.
 
     ``url`` defaults to the embedded store (``$ALVEARY_STORE`` or ``var/cubes``).
     """
-    from alveary.api._settings import default_store, scan_store
-
     store = Path(url) if url is not None else default_store()
     if not scan_store(store):
-        from alveary.ingest import build_demo
-
         print(f"alveary: building the demo cube in {store} ...", file=sys.stderr)
         build_demo(store)
-    options = dict(overrides or {})
+    options = dict(overrides)
     options.pop("config", None)
     options["store"] = store
     return serve(options)
