@@ -34,14 +34,14 @@ from alveary.api._covjson import (
     unit_object,
 )
 from alveary.cube import VariableInfo as CubeVariable
-from alveary.query import StatsResult, VariableInfo, ZoneResult
+from alveary.query import ResultVariable, StatsResult, ZoneResult
 from support.analytic import field, rain
 
 LEVEL = 9
 AXIS = np.datetime64("2024-05-01T00:00:00", "s") + np.arange(8) * np.timedelta64(1, "D")
 VARIABLES = {
     "temp": CubeVariable("temp", units="K", long_name="analytic temperature"),
-    "rain": VariableInfo("rain", "mm day-1", "analytic rain with gaps"),
+    "rain": ResultVariable("rain", "mm day-1", "analytic rain with gaps"),
 }
 BOX = (6.0, 44.0, 8.0, 46.0)  # west, south, east, north; rain is missing south of 44.8
 
@@ -296,7 +296,7 @@ def test_parameters_carry_observed_property_and_units():
             long_name="Root-zone soil moisture",
             standard_name="mass_content_of_water_in_soil_layer",
         ),
-        "flag": VariableInfo("flag", "", ""),
+        "flag": ResultVariable("flag", "", ""),
     }
     result = ZoneResult(
         "c",

@@ -37,7 +37,7 @@ from alveary.api._edr_docs import (
 )
 from alveary.api._edr_problem import edr_error, edr_status_for, exception_body
 from alveary.cube import create_cube, open_cube
-from support.memcube import MemoryCube
+from support.memcube import memory_cube
 
 BASE = "http://127.0.0.1:8000"
 
@@ -186,16 +186,18 @@ def test_data_queries_and_the_vendor_level(cube):
 
 
 def test_collection_from_metadata_objects(cube):
-    # The stored metadata itself and the in-memory test cube (variables as dicts).
+    # The stored metadata itself and a cube opened from the in-memory store.
     Collection.model_validate_json(_json(collection_document(cube.meta)))
-    doc = collection_document(MemoryCube(), title="Override", description="A field")
+    mem = memory_cube().catalog().get("mem")
+    doc = collection_document(mem, title="Override", description="A field")
     Collection.model_validate_json(_json(doc))
     assert (doc["title"], doc["description"]) == ("Override", "A field")
     assert doc["parameter_names"]["f"]["unit"]["symbol"] == "K"
 
 
 def test_collections_document(cube):
-    doc = collections_document([cube, (MemoryCube(), "Memory")], BASE)
+    mem = memory_cube().catalog().get("mem")
+    doc = collections_document([cube, (mem, "Memory")], BASE)
     Collections.model_validate_json(_json(doc))
     assert [c["id"] for c in doc["collections"]] == ["velmora-irrigation", "mem"]
     assert doc["collections"][1]["title"] == "Memory"

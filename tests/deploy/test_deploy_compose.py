@@ -159,7 +159,7 @@ def _clean_aws_env(**extra: str) -> dict[str, str]:
     return env
 
 
-@pytest.mark.slow
+@pytest.mark.server
 def test_one_shot_job_publishes_the_demo_cube_into_s3(s3_server, tmp_path):
     from alveary import grid
     from alveary.cube import open_cube

@@ -386,7 +386,7 @@ def test_dask_scheduler_workers_and_job_agree():
     assert {sc["image"], wc["image"], jc["image"]} == {"alveary:0.1.0"}
 
 
-@pytest.mark.slow
+@pytest.mark.server
 def test_dask_commands_of_the_recipe_start_and_register(tmp_path):
     # judge: the installed dask/distributed command line accepts the manifests' arguments
     # (run here on loopback: addresses and directories swapped, every flag kept)

@@ -259,7 +259,7 @@ def _exercise(base: str) -> None:
         assert _get(base + path)[0] == 200, path
 
 
-@pytest.mark.slow
+@pytest.mark.server
 @pytest.mark.skipif(sys.platform != "linux", reason="Linux only")
 def test_service_answers_without_wx_memory_capabilities_or_a_writable_root(
     analytic_store, tmp_path
@@ -329,7 +329,7 @@ def _allowed_syscalls() -> set[str]:
     return allowed
 
 
-@pytest.mark.slow
+@pytest.mark.server
 @pytest.mark.skipif(
     shutil.which("strace") is None or shutil.which("systemd-analyze") is None,
     reason="needs strace and systemd-analyze",

@@ -90,12 +90,14 @@ def linear_to_oklab(rgb: np.ndarray) -> np.ndarray:
     [1.0, 0.0, 0.0]
     """
     lms = np.asarray(rgb, dtype=np.float64) @ _M1.T
-    return np.cbrt(lms) @ _M2.T
+    lab: np.ndarray = np.cbrt(lms) @ _M2.T
+    return lab
 
 
 def oklab_to_linear(lab: np.ndarray) -> np.ndarray:
     """Linear sRGB triples of OKLab (L, a, b); may fall outside [0, 1] (out of gamut)."""
-    return (np.asarray(lab, dtype=np.float64) @ _M2_INV.T) ** 3 @ _M1_INV.T
+    rgb: np.ndarray = (np.asarray(lab, dtype=np.float64) @ _M2_INV.T) ** 3 @ _M1_INV.T
+    return rgb
 
 
 def _lch(points: list[tuple[float, float, float]]) -> np.ndarray:
@@ -324,4 +326,5 @@ def apply_scale(
     """
     pos = scale_positions(values, vmin, vmax)
     table = np.vstack([scale.edge_lut if edges else scale.lut, np.zeros((1, 4), np.uint8)])
-    return table[pos]  # position -1 is the transparent row
+    rgba: np.ndarray = table[pos]  # position -1 is the transparent row
+    return rgba

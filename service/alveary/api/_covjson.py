@@ -36,9 +36,7 @@ import orjson
 
 from alveary import grid
 from alveary.api._units import unit_symbol
-from alveary.query import StatsResult, ZoneResult, format_time
-from alveary.query._edr_params import CRS84
-from alveary.query._steps import step_bounds
+from alveary.query import CRS84, StatsResult, ZoneResult, format_time, step_bounds
 
 __all__ = [
     "COVJSON",
@@ -163,8 +161,8 @@ def unit_object(units: str, *, i18n: bool = True) -> dict[str, Any] | None:
 def covjson_parameter(info: Any) -> dict[str, Any]:
     """The CoverageJSON parameter object of a variable.
 
-    >>> from alveary.query import VariableInfo
-    >>> p = covjson_parameter(VariableInfo("sm", "m3 m-3", "Root-zone soil moisture"))
+    >>> from alveary.query import ResultVariable
+    >>> p = covjson_parameter(ResultVariable("sm", "m3 m-3", "Root-zone soil moisture"))
     >>> p["observedProperty"]["label"], p["unit"]["symbol"]
     ({'en': 'Root-zone soil moisture'}, 'm³/m³')
     """

@@ -27,9 +27,7 @@ import numpy as np
 
 from alveary._errors import InvalidInput
 from alveary.api._covjson import COVJSON, COVJSON_LEGACY, observed_property, unit_object
-from alveary.query import STATISTICS, format_time
-from alveary.query._edr_params import CRS84, WITHIN_UNITS
-from alveary.query._steps import step_bounds
+from alveary.query import CRS84, STATISTICS, WITHIN_UNITS, format_time, step_bounds
 
 __all__ = [
     "COMMON_COLLECTIONS",

@@ -23,8 +23,8 @@ from alveary._errors import (
     InvalidInput,
     LimitExceeded,
     NotFound,
+    http_status,
 )
-from alveary.api._problem import status_for
 
 __all__ = [
     "EDR_PARAMETERS",
@@ -79,11 +79,12 @@ def edr_status_for(exc: BaseException) -> tuple[int, str]:
     >>> edr_status_for(NotFound("variable", "rain")), edr_status_for(NotFound("cube", "x"))
     ((400, 'Invalid parameter'), (404, 'Not found'))
     """
-    if isinstance(exc, LimitExceeded):
-        return status_for(exc)
-    if isinstance(exc, InvalidInput) or (isinstance(exc, NotFound) and exc.kind == "variable"):
+    if not isinstance(exc, LimitExceeded) and (
+        isinstance(exc, InvalidInput) or (isinstance(exc, NotFound) and exc.kind == "variable")
+    ):
         return 400, "Invalid parameter"
-    return status_for(exc)
+    row = http_status(exc)
+    return row.status, row.title
 
 
 def exception_body(

@@ -20,7 +20,7 @@ from typing import Any
 
 import mapbox_vector_tile  # type: ignore[import-untyped]
 import numpy as np
-import shapely  # type: ignore[import-untyped]
+import shapely
 
 from alveary import grid
 from alveary._errors import InvalidInput

@@ -69,7 +69,8 @@ def render_tile(
             raise InvalidInput("edges", f"shape {mask.shape}", f"shape {idx.shape}")
         outline = apply_scale(vals, scale, vmin, vmax, edges=True).view(np.uint32).reshape(-1)
         out[mask] = outline[idx[mask]]
-    return out.view(np.uint8).reshape((*idx.shape, 4))
+    rgba: np.ndarray = out.view(np.uint8).reshape((*idx.shape, 4))
+    return rgba
 
 
 def encode_png(rgba: np.ndarray, *, compress_level: int = PNG_COMPRESSION) -> bytes:

@@ -9,6 +9,7 @@ is written down as the protocols :class:`ServedCube` and :class:`CubeSnapshot`.
 
 from alveary.query._catalog import Catalog, CubeSource
 from alveary.query._cube import CubeSnapshot, ServedCube
+from alveary.query._edr_params import CRS84, WITHIN_UNITS
 from alveary.query._execute import execute
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
 from alveary.query._models import (
@@ -27,10 +28,13 @@ from alveary.query._models import (
 from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
 from alveary.query._result import ResultVariable, StatsResult, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
+from alveary.query._steps import select_steps, step_bounds
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
 
 __all__ = [
+    "CRS84",
     "STATISTICS",
+    "WITHIN_UNITS",
     "Area",
     "BboxQuery",
     "Catalog",
@@ -63,6 +67,8 @@ __all__ = [
     "parse_vars",
     "parse_zone",
     "resolve",
+    "select_steps",
     "select_times",
+    "step_bounds",
     "zone_statistics",
 ]
