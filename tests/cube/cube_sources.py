@@ -96,6 +96,7 @@ def write_format1_cube(root, cube_id, times, level, name, values):
     zarr directly from the format's documentation. ``values`` is ``(time, zones)`` over
     ``grid.all_zones(level)``; returns the version id."""
     import json
+    import warnings
 
     import zarr
     from zarr.codecs import BloscCodec
@@ -169,7 +170,9 @@ def write_format1_cube(root, cube_id, times, level, name, values):
             },
         }
     )
-    zarr.consolidate_metadata(store, path=f"versions/{version}", zarr_format=3)
+    with warnings.catch_warnings():  # consolidated metadata is not in the v3 spec yet
+        warnings.simplefilter("ignore", UserWarning)
+        zarr.consolidate_metadata(store, path=f"versions/{version}", zarr_format=3)
     pointer = {
         "format": "alveary-cube",
         "format_version": 1,
