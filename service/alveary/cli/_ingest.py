@@ -1,10 +1,14 @@
-"""``alveary ingest``, ``versions``, ``rollback`` and ``build-demo``: register(subparsers)."""
+"""``alveary ingest``, ``versions``, ``rollback`` and ``build-demo``: building and
+publishing cubes, on the public functions of :mod:`alveary.ingest` and :mod:`alveary.cube`."""
 
 from __future__ import annotations
 
 import argparse
 import sys
 from typing import Any
+
+from alveary.cube import list_versions, rollback
+from alveary.ingest import build_demo, ingest
 
 __all__ = ["register"]
 
@@ -103,8 +107,6 @@ def register(subparsers: Any) -> None:
 
 
 def _ingest(args: argparse.Namespace) -> int:
-    from alveary.ingest._build import ingest
-
     summary = ingest(
         args.sources,
         args.out,
@@ -134,8 +136,6 @@ def _ingest(args: argparse.Namespace) -> int:
 
 
 def _versions(args: argparse.Namespace) -> int:
-    from alveary.cube import list_versions
-
     rows = [v.row() for v in list_versions(args.url)]
     cols = ("version", "published", "state", "steps", "bytes", "variables")
     width = {c: max(len(c), *(len(str(r[c])) for r in rows)) for c in cols}
@@ -146,16 +146,12 @@ def _versions(args: argparse.Namespace) -> int:
 
 
 def _rollback(args: argparse.Namespace) -> int:
-    from alveary.cube import rollback
-
     pointer = rollback(args.url, args.version)
     print(f"cube {pointer.cube_id} at {args.url}: current version {pointer.version}")
     return 0
 
 
 def _build_demo(args: argparse.Namespace) -> int:
-    from alveary.ingest._demo import build_demo
-
     url = build_demo(args.store, force=args.force, progress=sys.stderr.isatty())
     summary = getattr(build_demo, "last_summary", None)
     print(summary.text() if summary is not None else f"demo cube already built at {url}")
