@@ -66,16 +66,23 @@ def test_etag_and_304_without_store_reads(http, s3_server):
     assert weak.status_code == 304
 
 
-def test_warm_query_reads_nothing_and_cold_reads_the_plan(http, s3_server):
+def test_warm_query_reads_nothing_and_cold_reads_the_plan(
+    alveary_service, analytic_store, s3_server
+):
+    # a service of its own: its chunk cache is cold whatever other tests asked before
+    url, options = analytic_store
+    cubes = [{"id": "analytic", "url": url, "title": "Analytic", "storage_options": options}]
+    proc = alveary_service(cubes)
     params = {"lat": -40.0, "lon": -60.0, "k": 2}
-    mark = s3_server.mark()
-    assert http.get("/cubes/analytic/disk", params=params).status_code == 200
-    cold = chunk_gets(s3_server, mark)
-    assert cold, "a cold query reads its chunks"
-    assert len({r.path for r in cold}) == len(cold)  # each chunk once
-    mark = s3_server.mark()
-    assert http.get("/cubes/analytic/disk", params={**params, "f": "csv"}).status_code == 200
-    assert chunk_gets(s3_server, mark) == []  # served from the chunk cache
+    with httpx.Client(base_url=proc.url, timeout=30) as http:
+        mark = s3_server.mark()
+        assert http.get("/cubes/analytic/disk", params=params).status_code == 200
+        cold = chunk_gets(s3_server, mark)
+        assert cold, "a cold query reads its chunks"
+        assert len({r.path for r in cold}) == len(cold)  # each chunk once
+        mark = s3_server.mark()
+        assert http.get("/cubes/analytic/disk", params={**params, "f": "csv"}).status_code == 200
+        assert chunk_gets(s3_server, mark) == []  # served from the chunk cache
 
 
 @pytest.mark.parametrize(

@@ -9,6 +9,8 @@
 3. Requests per read through the S3-protocol test server (moto_server on 127.0.0.1):
    a single zone and time step, a 100-zone disk, a one-year daily series at one zone;
    GETs in the server's log against the minimal number of chunks covering the request.
+4. Appending one day to a 40-day cube against building the 41 days anew: bytes
+   written and seconds (goal: an append costs about one time block, not the cube).
 """
 
 from __future__ import annotations
@@ -131,6 +133,34 @@ def throughput(tmp: Path) -> None:
         )
 
 
+def append(tmp: Path) -> None:
+    import xarray as xr
+
+    src = _write_nc(tmp / "days.nc", 1.0, 41)
+    first = tmp / "days-first.nc"
+    last = tmp / "days-last.nc"
+    with xr.open_dataset(src) as ds:
+        ds.isel(time=slice(0, 40)).to_netcdf(first)
+        ds.isel(time=slice(40, 41)).to_netcdf(last)
+    kw = dict(variables=["t"], cube_id="days", time_block=8, method="mean")
+    ingest([str(first)], str(tmp / "days"), 7, **kw)
+    t0 = time.perf_counter()
+    grown = ingest([str(last)], str(tmp / "days"), 7, append=True, **kw)
+    dt_append = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    whole = ingest([src], str(tmp / "days-whole"), 7, **kw)
+    dt_whole = time.perf_counter() - t0
+    print("## append one day to a 40-day cube (global 1 deg NetCDF, level 7, mean)")
+    print(
+        f"bytes written: append {grown.bytes_stored}, rebuild {whole.bytes_stored}, "
+        f"append / rebuild {grown.bytes_stored / whole.bytes_stored:.3f}"
+    )
+    print(
+        f"seconds: append {dt_append:.2f}, rebuild {dt_whole:.2f}, "
+        f"append / rebuild {dt_append / dt_whole:.3f}"
+    )
+
+
 def _minimal_chunks(cube, zones, t0, t1) -> int:
     """Distinct chunks holding the requested cells, by direct index arithmetic."""
     level = int(np.asarray(grid.zone_level(zones)).flat[0])
@@ -177,7 +207,11 @@ def requests(tmp: Path) -> None:
             ("100-zone disk, one day", disk, "2023-06-01", "2023-06-01"),
             ("one zone, one year", np.atleast_1d(centre), None, None),
         ]
+        mark = server.mark()
+        cube = open_cube(url, storage_options=opts)
+        opening = len(server.requests(since=mark, bucket=url))
         print("## requests per read (S3 server log)")
+        print(f"opening a version: {opening} GETs (pointer, manifest, metadata, time axis)")
         for name, z, start, end in cases:
             ts = cube.time_indices(start, end)
             minimal = _minimal_chunks(cube, z, ts.start, ts.stop)
@@ -198,6 +232,7 @@ def main() -> int:
         storage(tmp)
         throughput(tmp)
         requests(tmp)
+        append(tmp)
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
     return 0

@@ -5,8 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from alveary import grid
-from alveary.cube import ChunkShape, create_cube, open_cube
+from alveary import StoreUnavailable, grid
+from alveary.cube import ChunkShape, create_cube, is_checksum_error, open_cube
 
 LEVEL = 5
 TIMES = np.arange("2023-01-01", "2024-01-01", dtype="datetime64[D]").astype("datetime64[s]")
@@ -82,8 +82,10 @@ def test_year_series_and_missing_chunks(s3_server, s3_cube):
         reqs = s3_server.requests(since=mark, bucket=url)
         assert series.shape == (365, 1)
         assert bool(np.isfinite(series).all()) is finite
-        assert len(reqs) == len(plan) and all(r.method == "GET" for r in reqs)
-        assert all((r.status == 200) is finite for r in reqs)  # unwritten chunks: 404
+        # the manifest lists the written chunks: those are fetched (all found), the
+        # never-written ones cost no request at all
+        assert len(reqs) == (len(plan) if finite else 0)
+        assert all(r.method == "GET" and r.status == 200 for r in reqs)
 
 
 def test_s3_and_local_return_the_same_values(s3_cube, tmp_path):
@@ -101,3 +103,135 @@ def test_s3_and_local_return_the_same_values(s3_cube, tmp_path):
     assert local.version == remote.version
     sample = zones[::17]
     np.testing.assert_array_equal(local.read("sm", sample), remote.read("sm", sample))
+
+
+def test_opening_costs_one_get_more_than_format_1(s3_server, s3_cube):
+    url, options, _ = s3_cube
+    mark = s3_server.mark()
+    cube = open_cube(url, storage_options=options)
+    reqs = s3_server.requests(since=mark, bucket=url)
+    root = f"year/versions/{cube.version}"
+    assert [(r.method, r.path.split("/", 2)[2]) for r in reqs] == [
+        ("GET", "year/current.json"),
+        ("GET", f"{root}/manifest.json"),
+        ("GET", f"{root}/zarr.json"),
+        ("GET", f"{root}/time/c/0"),
+    ]
+
+
+def _listing(s3_server, bucket, prefix):
+    """Every object key under a prefix, from the server's own listing (boto3)."""
+    pages = (
+        s3_server.client().get_paginator("list_objects_v2").paginate(Bucket=bucket, Prefix=prefix)
+    )
+    return {o["Key"] for page in pages for o in page.get("Contents", [])}
+
+
+@pytest.fixture
+def appended(s3_server):
+    """A cube on S3 built in two versions: 40 days, then 30 more appended."""
+    bucket = s3_server.create_bucket()
+    url, options = f"s3://{bucket}/grow", s3_server.storage_options()
+    zones = grid.zones_in_bbox(10.0, 40.0, 20.0, 50.0, LEVEL)
+    vals = np.arange(70, dtype=float)[:, None] + np.arange(zones.size)[None, :] / 1000
+
+    def version(ndays, start, inherit):
+        w = create_cube(
+            url,
+            cube_id="grow",
+            times=TIMES[:ndays],
+            levels=[LEVEL],
+            variables={"x": {"units": "1"}},
+            chunks=ChunkShape(16, 32, 16),
+            storage_options=options,
+            inherit=inherit,
+        )
+        w.write("x", LEVEL, zones, vals[start:ndays], start=start)
+        return w.publish()
+
+    first = version(40, 0, False)
+    second = version(70, 40, True)
+    return url, options, bucket, zones, vals, first, second
+
+
+def test_reads_of_an_appended_version_get_each_chunk_from_its_owner(s3_server, appended):
+    url, options, bucket, zones, vals, first, second = appended
+
+    # what each version stored, in the server's own listing: blocks 0-1 only under the
+    # first, blocks 2-4 (the partial block 2 rewritten) under the second
+    def blocks(version):
+        keys = _listing(s3_server, bucket, f"grow/versions/{version}/x/{LEVEL}/strips/c/")
+        return {int(k.split("/c/")[1].split("/")[0]) for k in keys}
+
+    assert blocks(first) == {0, 1, 2} and blocks(second) == {2, 3, 4}
+    cube = open_cube(url, storage_options=options)
+    zone = zones[:1]
+    plan = cube.plan("x", zone)
+    assert len(plan) == 5
+    mark = s3_server.mark()
+    np.testing.assert_allclose(cube.read("x", zone)[:, 0], vals[:, 0], atol=1e-4)
+    got = [r.path.split("/versions/", 1)[1] for r in s3_server.requests(since=mark, bucket=url)]
+    expect = [f"{first if tb < 2 else second}/{k}" for tb, k in enumerate(plan.keys)]
+    assert sorted(got) == sorted(expect)
+    # the manifest's answer agrees with the listing for every chunk of the plan
+    held = _listing(s3_server, bucket, "grow/versions/")
+    for cr in plan.reads:
+        owner = first if cr.coords[0] < 2 else second
+        assert cube.meta.written(cr.array, cr.coords) is (f"grow/versions/{owner}/{cr.key}" in held)
+
+
+def test_a_written_chunk_missing_from_the_store_is_a_fault(s3_server, appended):
+    url, options, bucket, zones, _, first, _ = appended
+    cube = open_cube(url, storage_options=options)
+    key = cube.plan("x", zones[:1]).keys[0]
+    s3_server.client().delete_object(Bucket=bucket, Key=f"grow/versions/{first}/{key}")
+    with pytest.raises(StoreUnavailable, match="listed in the version's manifest"):
+        cube.read("x", zones[:1])
+
+
+def test_a_flipped_byte_on_s3_fails_the_checksum(s3_server, appended):
+    url, options, bucket, zones, _, _, second = appended
+    cube = open_cube(url, storage_options=options)
+    key = f"grow/versions/{second}/" + cube.plan("x", zones[:1], TIMES[60]).keys[0]
+    client = s3_server.client()
+    data = bytearray(client.get_object(Bucket=bucket, Key=key)["Body"].read())
+    data[5] ^= 0x01
+    client.put_object(Bucket=bucket, Key=key, Body=bytes(data))
+    with pytest.raises(ValueError) as err:
+        cube.read("x", zones[:1], TIMES[60], TIMES[60])
+    assert is_checksum_error(err.value)
+
+
+def test_retention_on_s3_deletes_only_unreferenced_objects(s3_server):
+    bucket = s3_server.create_bucket()
+    url, options = f"s3://{bucket}/keep", s3_server.storage_options()
+    zones = grid.zones_in_bbox(10.0, 40.0, 20.0, 50.0, LEVEL)
+
+    def publish(ndays, start, inherit):
+        w = create_cube(
+            url,
+            cube_id="keep",
+            times=TIMES[:ndays],
+            levels=[LEVEL],
+            variables={"x": {"units": "1"}},
+            chunks=ChunkShape(16, 32, 16),
+            storage_options=options,
+            inherit=inherit,
+            keep_versions=1,
+            grace_seconds=0,
+        )
+        w.write("x", LEVEL, zones, np.ones((ndays - start, zones.size)), start=start)
+        return w.publish()
+
+    first = publish(40, 0, False)
+    second = publish(70, 40, True)  # retires the first; with no grace it is due at once
+    left = _listing(s3_server, bucket, f"keep/versions/{first}/")
+    # the first's metadata and manifest are gone; its blocks 0 and 1 stay (inherited)
+    assert left and all("/c/" in k for k in left)
+    assert {int(k.split("/c/")[1].split("/")[0]) for k in left} == {0, 1}
+    cube = open_cube(url, storage_options=options)
+    assert cube.version == second
+    assert np.isfinite(cube.read("x", zones)).all()
+    publish(3, 0, False)  # a fresh version: nothing of the first two is used any more
+    assert _listing(s3_server, bucket, f"keep/versions/{first}/") == set()
+    assert _listing(s3_server, bucket, f"keep/versions/{second}/") == set()

@@ -143,7 +143,7 @@ def test_versions_switch_atomically(backend):
     assert reader.refresh() is True and reader.version == v2
     np.testing.assert_allclose(reader.read("temp", zones[:5]), vals2[:, :5], atol=1e-4)
     assert reader.refresh() is False
-    # keep_versions=2: the third publish removes the first
+    # keep 2: the third publish retires the first (deleted after the grace period)
     w3, _, _, _ = _build(url, options, offset=200.0)
     w3.publish()
     fresh = open_cube(url, storage_options=options)

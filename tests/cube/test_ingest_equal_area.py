@@ -57,7 +57,7 @@ def sin2_raster(tmp_path_factory):
 @pytest.mark.parametrize(("level", "method"), [(7, "nearest"), (5, "mean")])
 def test_plain_zone_mean_is_the_area_mean(tmp_path, sin2_raster, level, method):
     path, field = sin2_raster
-    ingest([path], str(tmp_path / "c"), level, method=method, cube_id="sin2")
+    ingest([path], str(tmp_path / "c"), level, method=method, cube_id="sin2", time="2024-01-01")
     cube = open_cube(str(tmp_path / "c"))
     values = cube.read("sin2", grid.all_zones(level))[0]
     assert np.isfinite(values).all()
@@ -73,7 +73,7 @@ def test_area_north_of_a_latitude(tmp_path):
     north = np.where(lat >= 40.0, 1.0, np.nan)[:, None].repeat(lon.size, axis=1)
     path = write_geotiff(tmp_path / "north.tif", north, west=-180, north=90, step_x=0.1)
     level = 6
-    ingest([path], str(tmp_path / "c"), level, cube_id="north")
+    ingest([path], str(tmp_path / "c"), level, cube_id="north", time="2024-01-01")
     cube = open_cube(str(tmp_path / "c"))
     zones = grid.all_zones(level)
     count = int(np.isfinite(cube.read("north", zones)[0]).sum())

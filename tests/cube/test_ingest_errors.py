@@ -15,6 +15,7 @@ from alveary.cube import open_cube
 from alveary.ingest import ingest
 
 ALVEARY = str(Path(sys.executable).parent / "alveary")
+T0 = "2024-01-01T00:00:00Z"  # the instant of the undated test rasters
 
 
 @pytest.fixture
@@ -87,17 +88,17 @@ def test_level_outside_the_grid(tmp_path, tif, level):
 
 def test_target_holding_a_different_cube(tmp_path, tif):
     out = tmp_path / "c"
-    first = ingest([tif], str(out), 3, cube_id="first")
+    first = ingest([tif], str(out), 3, cube_id="first", time=T0)
     before = sorted(p.relative_to(out) for p in out.rglob("*"))
     with pytest.raises(IngestError, match="already holds cube 'first'"):
-        ingest([tif], str(out), 3, cube_id="second")
+        ingest([tif], str(out), 3, cube_id="second", time=T0)
     assert sorted(p.relative_to(out) for p in out.rglob("*")) == before
     assert open_cube(str(out)).version == first.version
 
 
 def test_failed_build_removes_its_version_and_keeps_the_old_one(tmp_path, tif):
     out = tmp_path / "c"
-    first = ingest([tif], str(out), 3, cube_id="keep")
+    first = ingest([tif], str(out), 3, cube_id="keep", time=T0)
     # a file whose header reads but whose pixels do not: the failure comes mid-build
     lon, lat = lonlat_axes(0.05, 0, 0, 10, 10)
     bad = write_geotiff(
@@ -110,7 +111,7 @@ def test_failed_build_removes_its_version_and_keeps_the_old_one(tmp_path, tif):
     data = Path(bad).read_bytes()
     Path(bad).write_bytes(data[: len(data) // 2])
     with pytest.raises(IngestError, match=r"cut\.tif"):
-        ingest([bad], str(out), 6, cube_id="keep", variables=["ones"])
+        ingest([bad], str(out), 6, cube_id="keep", variables=["ones"], time=T0, replace=True)
     assert open_cube(str(out)).version == first.version
     assert {p.name for p in (out / "versions").iterdir()} - {"zarr.json"} == {first.version}
 
@@ -133,6 +134,8 @@ def test_cli_builds_and_reports(tmp_path, tif):
             "--pyramid",
             "--cube-id",
             "cli",
+            "--time",
+            T0,
         ],
         capture_output=True,
         text=True,
@@ -165,7 +168,7 @@ def test_killed_build_leaves_the_published_version(tmp_path, tif):
     from cube_sources import write_netcdf
 
     out = tmp_path / "c"
-    first = ingest([tif], str(out), 3, cube_id="k", variables=["v"])
+    first = ingest([tif], str(out), 3, cube_id="k", variables=["v"], time=T0)
     lon, lat = lonlat_axes(0.5)
     times = np.arange("2024-01-01", 24, dtype="datetime64[D]")
     data = np.random.default_rng(0).random((times.size, lat.size, lon.size)).astype("f4")
@@ -187,6 +190,7 @@ def test_killed_build_leaves_the_published_version(tmp_path, tif):
         "k",
         "--time-block",
         "4",
+        "--replace",
     ]
     proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
@@ -211,7 +215,11 @@ def test_killed_build_leaves_the_published_version(tmp_path, tif):
     assert np.isfinite(cube.read("v", grid.zones_in_bbox(1, 1, 9, 9, 3))).all()  # whole
     # re-running starts cleanly: the abandoned version is removed, the new one published
     done = subprocess.run(
-        [*cmd[:-2], "--time-block", "16"], capture_output=True, text=True, timeout=300, check=False
+        [*cmd[:-3], "--time-block", "16", "--replace"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+        check=False,
     )
     assert done.returncode == 0, done.stderr
     assert cube.refresh() and cube.levels[-1] == 6

@@ -43,7 +43,7 @@ def land_fraction(tmp_path_factory):
 def test_land_share_of_the_earth(tmp_path, land_fraction):
     path, frac = land_fraction
     level = 6
-    ingest([path], str(tmp_path / "c"), level, method="mean", cube_id="land")
+    ingest([path], str(tmp_path / "c"), level, method="mean", cube_id="land", time="2024-01-01")
     cube = open_cube(str(tmp_path / "c"))
     values = cube.read("land", grid.all_zones(level))[0]
     assert np.isfinite(values).all()

@@ -91,7 +91,15 @@ def test_nodata_is_never_averaged(tmp_path):
     holes = rng.random(f.shape) < 0.3
     f[holes] = -9999.0
     path = write_geotiff(tmp_path / "five.tif", f, west=5, north=47, step_x=0.01, nodata=-9999.0)
-    ingest([path], str(tmp_path / "c"), 9, method="mean", cube_id="five", min_coverage=0.0)
+    ingest(
+        [path],
+        str(tmp_path / "c"),
+        9,
+        method="mean",
+        cube_id="five",
+        min_coverage=0.0,
+        time="2024-01-01",
+    )
     cube = open_cube(str(tmp_path / "c"))
     got = cube.read("five", _region_zones(9, 5.3, 45.3, 6.7, 46.7))
     assert np.isfinite(got).all()
@@ -104,7 +112,7 @@ def test_packed_integers_keep_their_packing(tmp_path):
     path = write_geotiff(
         tmp_path / "sm.tif", raw, west=0, north=4, step_x=0.1, nodata=-32768, scale=1e-4
     )
-    ingest([path], str(tmp_path / "c"), 7, cube_id="sm")
+    ingest([path], str(tmp_path / "c"), 7, cube_id="sm", time="2024-01-01")
     cube = open_cube(str(tmp_path / "c"))
     info = cube.variables["sm"]
     assert info.dtype == "int16" and info.scale_factor == pytest.approx(1e-4)

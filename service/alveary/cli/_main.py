@@ -4,31 +4,11 @@ from __future__ import annotations
 
 import argparse
 import sys
-from typing import Any
 
 from alveary import AlvearyError, __version__
-from alveary.cli import _serve, _zone
-from alveary.ingest import _cli as _ingest_cli
+from alveary.cli import _ingest, _serve, _zone
 
 __all__ = ["build_parser", "main"]
-
-
-class _Without:
-    """The subparsers of the command, hiding some names from a ``register`` function.
-
-    The ingest commands still come with a fallback ``demo`` of their own; the ``demo``
-    here (build, then serve) replaces it.
-    """
-
-    def __init__(self, subparsers: Any, hidden: set[str]) -> None:
-        self._subparsers = subparsers
-        self._hidden = hidden
-
-    def add_parser(self, name: str, **kwargs: Any) -> argparse.ArgumentParser:
-        if name in self._hidden:
-            return argparse.ArgumentParser(prog=name, add_help=False)  # never reached
-        parser: argparse.ArgumentParser = self._subparsers.add_parser(name, **kwargs)
-        return parser
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -39,7 +19,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"alveary {__version__}")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND")
     _zone.register(subparsers)
-    _ingest_cli.register(_Without(subparsers, {"demo"}))
+    _ingest.register(subparsers)
     _serve.register(subparsers)
     return parser
 

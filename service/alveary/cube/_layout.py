@@ -16,6 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from alveary._errors import InvalidInput
 
@@ -156,7 +157,9 @@ class LevelLayout:
         t = int(self.chunks.time)
         return block * t, min((block + 1) * t, int(self.ntimes))
 
-    def spatial_chunk(self, i, j):
+    def spatial_chunk(
+        self, i: ArrayLike, j: ArrayLike
+    ) -> tuple[NDArray[np.int64], NDArray[np.int64], NDArray[np.int64], NDArray[np.int64]]:
         """Vectorised: row block and column block of strip cells, and the offsets in them.
 
         Returns

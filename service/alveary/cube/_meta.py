@@ -9,30 +9,36 @@ from typing import Any
 
 import numpy as np
 
+from alveary import grid
 from alveary._errors import CubeFormatError, InvalidInput
 from alveary.cube._layout import ChunkShape
+from alveary.cube._manifest import Manifest
 from alveary.cube._time import parse_time, to_times
 
 __all__ = [
     "FORMAT_NAME",
     "FORMAT_VERSION",
     "GRID_DESCRIPTION",
+    "READABLE_FORMATS",
     "TIME_UNITS",
     "CubeMeta",
     "VariableInfo",
+    "check_cube_id",
     "parse_time",
     "to_times",
 ]
 
 FORMAT_NAME = "alveary-cube"
-FORMAT_VERSION = 1
+# 2: every version has a manifest, chunks carry a CRC32C checksum, and a version may
+# inherit chunks stored under an older version. 1: neither (still read).
+FORMAT_VERSION = 2
+READABLE_FORMATS = (1, 2)
 TIME_UNITS = "seconds since 1970-01-01T00:00:00Z"
-MAX_LEVEL = 24
 
 GRID_DESCRIPTION: dict[str, Any] = {
     "name": "alveary equal-area hexagonal grid",
     "earth_model": "WGS84 ellipsoid; geodetic latitudes mapped to the authalic sphere",
-    "authalic_radius_m": 6371007.1809,
+    "authalic_radius_m": round(grid.R_AUTHALIC, 4),
     "polyhedron": "icosahedron, a vertex at 58.28252559 N 11.25 E, its neighbour at azimuth 0",
     "projection": "Snyder equal-area polyhedral projection (Cartographica 29(1), 1992)",
     "aperture": 4,
@@ -48,6 +54,13 @@ _AGGREGATIONS = ("mean", "sum")
 
 
 def check_cube_id(cube_id: str) -> str:
+    """The cube id if it is valid, else :class:`alveary.InvalidInput`.
+
+    Examples
+    --------
+    >>> check_cube_id("velmora-irrigation")
+    'velmora-irrigation'
+    """
     if not isinstance(cube_id, str) or not _ID.match(cube_id):
         raise InvalidInput(
             "cube_id", cube_id, "1-64 characters of A-Z a-z 0-9 _ . -, starting alphanumeric"
@@ -276,6 +289,18 @@ class CubeMeta:
     source: str = ""
     history: str = ""
     extra: dict[str, Any] = field(default_factory=dict)
+    manifest: Manifest | None = field(default=None, repr=False)
+
+    def written(self, array: str, coords: tuple[int, ...]) -> bool | None:
+        """Whether this version wrote the chunk ``coords`` of ``array`` (``"sm/6/strips"``).
+
+        ``True``: the chunk holds data, so a failure to read it is a fault of the store.
+        ``False``: it was never written (no data). ``None``: unknown, the version was
+        written before manifests (format 1). Pure: no I/O.
+        """
+        if self.manifest is None:
+            return None
+        return self.manifest.written(array, coords)
 
     def to_attrs(self) -> dict[str, Any]:
         """Root-group attributes: CF/ACDD globals plus the ``alveary`` block."""
@@ -332,27 +357,28 @@ class CubeMeta:
         if not isinstance(block, dict) or block.get("format") != FORMAT_NAME:
             raise CubeFormatError("store", None, f"a root group with an {FORMAT_NAME!r} block")
         fv = block.get("format_version")
-        if fv != FORMAT_VERSION:
-            raise CubeFormatError("format_version", fv, f"{FORMAT_VERSION}")
+        if fv not in READABLE_FORMATS:
+            raise CubeFormatError("format_version", fv, " or ".join(map(str, READABLE_FORMATS)))
         try:
             chunks = {
                 int(k): ChunkShape(int(c["time"]), int(c["rows"]), int(c["cols"]))
                 for k, c in block["chunks"].items()
             }
-            shards = {
-                int(k): (None if v is None else tuple(int(x) for x in v))
+            shards: dict[int, tuple[int, int, int] | None] = {
+                int(k): (None if v is None else (int(v[0]), int(v[1]), int(v[2])))
                 for k, v in block.get("shards", {}).items()
             }
+            w, s, e, n = (float(x) for x in block["coverage"]["bbox"])
             variables = {k: VariableInfo.from_json(k, v) for k, v in block["variables"].items()}
             return cls(
-                id=block["id"],
-                title=block.get("title", block["id"]),
+                id=str(block["id"]),
+                title=str(block.get("title", block["id"])),
                 levels=tuple(sorted(int(x) for x in block["levels"])),
                 times=times,
                 variables=variables,
                 chunks=chunks,
                 shards=shards,
-                coverage=tuple(float(x) for x in block["coverage"]["bbox"]),
+                coverage=(w, s, e, n),
                 version=block["version"],
                 created=block.get("created", ""),
                 summary=attrs.get("summary", ""),

@@ -114,45 +114,61 @@ def plan_cells(
     if not (region.shape == i.shape == j.shape):
         raise GridError("zones", None, "region, i and j of equal length")
     t0, t1 = int(time.start), int(time.stop)
-    tblocks = layout.time_blocks(t0, t1)
-    reads: list[ChunkRead] = []
+    tblocks = layout.time_blocks(t0, t1).tolist()
     positions = np.arange(region.size, dtype=np.int64)
-
     strip = region < STRIPS
-    if strip.any():
-        pos = positions[strip]
-        rb, cb, di, dj = layout.spatial_chunk(i[strip], j[strip])
-        k = region[strip]
-        _, _, nr, nc = layout.chunk_grid
-        sid = (k * nr + rb) * nc + cb
-        order = np.argsort(sid, kind="stable")
-        sid_sorted = sid[order]
-        uniq, starts = np.unique(sid_sorted, return_index=True)
-        bounds = np.append(starts, sid_sorted.size)
-        nbytes = layout.strip_chunk_nbytes(itemsize)
-        array = f"{prefix}/strips"
-        for u, a, b in zip(uniq.tolist(), bounds[:-1].tolist(), bounds[1:].tolist(), strict=True):
-            sel = order[a:b]
-            kk, rest = divmod(u, nr * nc)
-            rr, cc = divmod(rest, nc)
-            cols = pos[sel]
-            cells = (np.zeros(sel.size, dtype=np.int64), di[sel], dj[sel])
-            for tb in tblocks.tolist():
-                reads.append(_read(layout, array, (tb, kk, rr, cc), t0, t1, cols, cells, nbytes))
-
-    apex = ~strip
-    if apex.any():
-        cols = positions[apex]
-        bad = (region[apex] != 5) & (region[apex] != 6)
-        if bad.any():
-            raise GridError("zones", int(region[apex][bad][0]), "regions 0..6")
-        cells = (region[apex] - 5,)
-        array = f"{prefix}/apex"
-        nbytes = layout.apex_chunk_nbytes(itemsize)
-        for tb in tblocks.tolist():
-            reads.append(_read(layout, array, (tb, 0), t0, t1, cols, cells, nbytes))
-
+    reads = [
+        _read(layout, f"{prefix}/{array}", (tb, *chunk), t0, t1, cols, cells, nbytes)
+        for array, chunk, cols, cells, nbytes in (
+            *_strip_groups(layout, region[strip], i[strip], j[strip], positions[strip], itemsize),
+            *_apex_groups(layout, region[~strip], positions[~strip], itemsize),
+        )
+        for tb in tblocks
+    ]
     return ReadPlan(variable, int(layout.level), slice(t0, t1), int(region.size), tuple(reads))
+
+
+_Group = tuple[str, tuple[int, ...], np.ndarray, tuple[np.ndarray, ...], int]
+
+
+def _strip_groups(
+    layout: LevelLayout,
+    region: np.ndarray,
+    i: np.ndarray,
+    j: np.ndarray,
+    pos: np.ndarray,
+    itemsize: int,
+) -> list[_Group]:
+    """Strip cells grouped by spatial chunk: (array, chunk, columns, cells, bytes)."""
+    if region.size == 0:
+        return []
+    rb, cb, di, dj = layout.spatial_chunk(i, j)
+    _, _, nr, nc = layout.chunk_grid
+    sid = (region * nr + rb) * nc + cb
+    order = np.argsort(sid, kind="stable")
+    uniq, starts = np.unique(sid[order], return_index=True)
+    bounds = np.append(starts, sid.size)
+    nbytes = layout.strip_chunk_nbytes(itemsize)
+    groups: list[_Group] = []
+    for u, a, b in zip(uniq.tolist(), bounds[:-1].tolist(), bounds[1:].tolist(), strict=True):
+        sel = order[a:b]
+        kk, rest = divmod(u, nr * nc)
+        rr, cc = divmod(rest, nc)
+        cells = (np.zeros(sel.size, np.int64), di[sel], dj[sel])
+        groups.append(("strips", (kk, rr, cc), pos[sel], cells, nbytes))
+    return groups
+
+
+def _apex_groups(
+    layout: LevelLayout, region: np.ndarray, pos: np.ndarray, itemsize: int
+) -> list[_Group]:
+    """The apex cells (regions 5 and 6) as one group."""
+    if region.size == 0:
+        return []
+    bad = (region != 5) & (region != 6)
+    if bad.any():
+        raise GridError("zones", int(region[bad][0]), "regions 0..6")
+    return [("apex", (0,), pos, (region - 5,), layout.apex_chunk_nbytes(itemsize))]
 
 
 def _read(
@@ -168,6 +184,7 @@ def _read(
     tb = coords[0]
     c0, c1 = layout.time_range(tb)
     a, b = max(t0, c0), min(t1, c1)
+    selection: tuple[slice, ...]
     if len(coords) == 4:
         selection = layout.strip_chunk_selection(*coords)
     else:

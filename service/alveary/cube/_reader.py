@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 import threading
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -15,11 +16,12 @@ from alveary import grid
 from alveary._errors import CubeFormatError, GridError, InvalidInput, NotFound
 from alveary.cube._cache import ChunkCache, IOStats
 from alveary.cube._layout import LevelLayout
+from alveary.cube._manifest import ResolvingStore
 from alveary.cube._meta import CubeMeta, VariableInfo
 from alveary.cube._plan import ChunkRead, ReadPlan, plan_cells
 from alveary.cube._store import CountingStore, normalize_url, open_store
 from alveary.cube._time import parse_time
-from alveary.cube._writer import POINTER_KEY, VERSIONS, read_pointer
+from alveary.cube._versions import POINTER_KEY, VERSIONS, read_manifest, read_pointer
 
 __all__ = ["Cube", "CubeVersion", "open_cube"]
 
@@ -103,9 +105,13 @@ async def _open_version(store: CountingStore, url: str, cache: ChunkCache | None
     vid = pointer.get("version")
     if not isinstance(vid, str):
         raise CubeFormatError(POINTER_KEY, vid, "a version id")
+    # -- manifest (format 2): chunk keys resolve through it; format 1 has none --------
+    manifest = await read_manifest(store, vid)
+    vstore = store if manifest is None else ResolvingStore(store, f"{VERSIONS}/{vid}", manifest)
+    # -- end manifest ------------------------------------------------------------------
     try:
         group = await zarr.api.asynchronous.open_group(
-            store=store,
+            store=vstore,
             path=f"{VERSIONS}/{vid}",
             mode="r",
             zarr_format=3,
@@ -118,7 +124,7 @@ async def _open_version(store: CountingStore, url: str, cache: ChunkCache | None
         raise CubeFormatError("time", vid, "a time array in the version")
     seconds = await tarr.getitem(slice(None))
     times = np.asarray(seconds, dtype=np.int64).astype("datetime64[s]")
-    meta = CubeMeta.from_attrs(dict(group.attrs), times)
+    meta = replace(CubeMeta.from_attrs(dict(group.attrs), times), manifest=manifest)
     return CubeVersion(url, vid, meta, group, cache)
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import json
 import os
 import re
-import tempfile
+import secrets
 from pathlib import Path
 from typing import Any
 
@@ -82,7 +82,7 @@ def _fsspec_options(protocol: str, options: dict[str, Any] | None) -> dict[str, 
     return opts
 
 
-class CountingStore(WrapperStore):
+class CountingStore(WrapperStore[Store]):
     """A store wrapper that counts GET requests and bytes into :class:`IOStats` sinks."""
 
     def __init__(self, store: Store, sinks: tuple[IOStats, ...] = ()) -> None:
@@ -139,29 +139,36 @@ async def get_json(store: Store, key: str) -> dict[str, Any] | None:
     buf = await store.get(key, default_buffer_prototype())
     if buf is None:
         return None
-    return json.loads(buf.to_bytes())
+    data: dict[str, Any] = json.loads(buf.to_bytes())
+    return data
 
 
 async def put_json_atomic(store: Store, key: str, data: dict[str, Any]) -> None:
     """Write a small JSON object so that readers see the old or the new one, whole.
 
     On an object store a single PUT is atomic. On local disk the bytes go to a
-    temporary file in the same directory, which then replaces the target.
+    temporary file in the same directory, which then replaces the target; the file is
+    created with the permissions of the process's umask, like every other object.
     """
     payload = json.dumps(data, indent=1, sort_keys=True).encode()
     inner = store._store if isinstance(store, WrapperStore) else store
     if isinstance(inner, LocalStore):
-        target = Path(inner.root) / key
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=".tmp-", dir=target.parent)
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(payload)
-                fh.flush()
-                os.fsync(fh.fileno())
-            os.replace(tmp, target)
-        except BaseException:
-            Path(tmp).unlink(missing_ok=True)
-            raise
+        _replace_file(Path(inner.root) / key, payload)
         return
     await store.set(key, default_buffer_prototype().buffer.from_bytes(payload))
+
+
+def _replace_file(target: Path, payload: bytes) -> None:
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = target.parent / f".tmp-{secrets.token_hex(8)}-{target.name}"
+    # os.open applies the umask to 0o666, as open() does for any new file
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(payload)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, target)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise

@@ -2,8 +2,9 @@
 
 :func:`ingest` (the ``alveary ingest`` command) reads GeoTIFF, NetCDF, Zarr, CSV and
 Parquet sources, resamples them to a refinement level (nearest zone centre or area
-mean), optionally builds the coarser levels, and publishes a new cube version. The work
-is split by chunks and runs on dask: local threads, or a dask.distributed cluster.
+mean), optionally builds the coarser levels, and publishes a new cube version: a fresh
+one, or one that appends time steps to the published version. The work is split by
+chunks and runs on dask: local threads, or a dask.distributed cluster.
 See ``service/docs/ingest.md``.
 """
 

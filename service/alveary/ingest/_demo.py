@@ -16,8 +16,10 @@ from __future__ import annotations
 
 import tempfile
 from pathlib import Path
+from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
 
 from alveary.cube import default_store_root
 
@@ -38,7 +40,7 @@ def demo_url(store: str | Path | None = None) -> str:
     return str(root / DEMO_CUBE_ID)
 
 
-def _simulate(days: int, seed: int):
+def _simulate(days: int, seed: int) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     rng = np.random.default_rng(seed)
     ny, nx = _SHAPE
     yy, xx = np.mgrid[0:ny, 0:nx]
@@ -141,7 +143,7 @@ def write_demo_sources(directory: str | Path, days: int = 365, seed: int = 7) ->
                 "comment": "Invented data for a place that does not exist.",
             },
         )
-        encoding = {
+        encoding: dict[str, dict[str, Any]] = {
             "soil_moisture": {
                 "dtype": "int16",
                 "scale_factor": 1e-4,
@@ -163,7 +165,7 @@ def build_demo(
     days: int = 365,
     progress: bool = False,
     scheduler: str | None = None,
-):
+) -> str:
     """Build the demo cube on the embedded store (if missing, or always with ``force``).
 
     Returns the cube's URL (a local path), ``<store>/velmora-irrigation``.
@@ -191,6 +193,7 @@ def build_demo(
                 "does not exist. Demo data only: not for irrigation or any other decision."
             ),
             progress=progress,
+            replace=True,
         )
     build_demo.last_summary = summary  # type: ignore[attr-defined]
     return url

@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from alveary import grid
 from alveary._errors import IngestError
@@ -43,9 +44,7 @@ def _column(cols: dict[str, str], names: tuple[str, ...], what: str, path: str) 
     raise IngestError("source", path, f"a {what} column (one of {', '.join(names)})")
 
 
-def _read_table(path: str):
-    import pandas as pd
-
+def _read_table(path: str) -> pd.DataFrame:
     p = Path(path)
     try:
         if p.suffix.lower() in (".parquet", ".pq"):
@@ -55,84 +54,102 @@ def _read_table(path: str):
         raise IngestError("source", path, f"a readable CSV or Parquet table ({exc})") from None
 
 
+def _value_columns(
+    df: pd.DataFrame, skip: set[str], names: list[str] | None, path: str
+) -> list[str]:
+    numeric = [str(c) for c in df.columns if c not in skip and pd.api.types.is_numeric_dtype(df[c])]
+    wanted = list(names) if names else numeric
+    missing = [n for n in wanted if n not in df.columns]
+    if missing:
+        raise IngestError("variable", missing[0], f"a value column of {path}: {numeric}")
+    if not wanted:
+        raise IngestError("source", path, "at least one numeric value column")
+    return wanted
+
+
+def _steps(df: pd.DataFrame, tcol: str, time_step: str, path: str) -> np.ndarray:
+    """Point times floored to the time step, as naive UTC ``datetime64[s]``."""
+    try:
+        t = pd.to_datetime(df[tcol], utc=True)
+    except (ValueError, TypeError) as exc:
+        raise IngestError("source", path, f"times pandas can parse ({exc})") from None
+    try:
+        steps = t.dt.floor(time_step).dt.tz_localize(None)
+    except ValueError as exc:
+        raise IngestError("time_step", time_step, f"a pandas frequency ({exc})") from None
+    return np.asarray(steps.to_numpy("datetime64[s]"))
+
+
+def _long_table(path: str, names: list[str] | None, time_step: str) -> pd.DataFrame:
+    """One table as rows of (var, lat, lon, t, v, src): one row per point and value column."""
+    df = _read_table(path)
+    cols = {str(c).lower(): c for c in df.columns}
+    lat = _column(cols, _LAT, "latitude", path)
+    lon = _column(cols, _LON, "longitude", path)
+    tcol = _column(cols, _TIME, "time", path)
+    wanted = _value_columns(df, {lat, lon, tcol}, names, path)
+    latv = pd.to_numeric(df[lat], errors="coerce").to_numpy(np.float64)
+    lonv = pd.to_numeric(df[lon], errors="coerce").to_numpy(np.float64)
+    bad = (np.abs(latv) > 90) & np.isfinite(latv)
+    if bad.any():
+        row = int(np.flatnonzero(bad)[0])
+        raise IngestError("lat", float(latv[row]), f"latitudes in [-90, 90] ({path}, row {row})")
+    steps = _steps(df, tcol, time_step, path)
+    frames = [
+        pd.DataFrame(
+            {
+                "var": n,
+                "lat": latv,
+                "lon": lonv,
+                "t": steps,
+                "v": pd.to_numeric(df[n], errors="coerce").to_numpy(np.float64),
+                "src": path,
+            }
+        )
+        for n in wanted
+    ]
+    return pd.concat(frames, ignore_index=True)
+
+
+def _bin(name: str, part: pd.DataFrame, level: int) -> PointBins:
+    """Mean and count per (time step, zone) of one variable's points.
+
+    Bins are the distinct rows of the two columns (time index, zone id), so any number
+    of time steps and any zone id is binned exactly.
+    """
+    lat = part["lat"].to_numpy(np.float64)
+    lon = part["lon"].to_numpy(np.float64)
+    zones = np.asarray(grid.point_to_zone(lat, lon, level), dtype=np.int64)  # ids < 2**53
+    times, ti = np.unique(part["t"].to_numpy("datetime64[s]"), return_inverse=True)
+    pairs = np.stack([ti.astype(np.int64).ravel(), zones.ravel()], axis=1)
+    keys, inv = np.unique(pairs, axis=0, return_inverse=True)
+    inv = inv.ravel()
+    count = np.bincount(inv, minlength=keys.shape[0])
+    total = np.bincount(inv, weights=part["v"].to_numpy(np.float64), minlength=keys.shape[0])
+    return PointBins(
+        name=name,
+        times=times,
+        tindex=keys[:, 0].copy(),
+        zones=keys[:, 1].astype(np.uint64),
+        mean=total / count,
+        count=count.astype(np.float64),
+        bbox=(float(lon.min()), float(lat.min()), float(lon.max()), float(lat.max())),
+        source=",".join(sorted(set(part["src"]))),
+    )
+
+
 def bin_points(
     paths: list[str], names: list[str] | None, level: int, time_step: str = "1D"
 ) -> dict[str, PointBins]:
     """Read point tables and bin their values per zone at ``level`` and time step."""
-    import pandas as pd
-
-    frames = []
-    for path in paths:
-        df = _read_table(path)
-        cols = {str(c).lower(): c for c in df.columns}
-        lat = _column(cols, _LAT, "latitude", path)
-        lon = _column(cols, _LON, "longitude", path)
-        tcol = _column(cols, _TIME, "time", path)
-        skip = {lat, lon, tcol}
-        numeric = [c for c in df.columns if c not in skip and pd.api.types.is_numeric_dtype(df[c])]
-        wanted = list(names) if names else [str(c) for c in numeric]
-        missing = [n for n in wanted if n not in df.columns]
-        if missing:
-            raise IngestError(
-                "variable", missing[0], f"a value column of {path}: {[str(c) for c in numeric]}"
-            )
-        if not wanted:
-            raise IngestError("source", path, "at least one numeric value column")
-        try:
-            t = pd.to_datetime(df[tcol], utc=True)
-        except (ValueError, TypeError) as exc:
-            raise IngestError("source", path, f"times pandas can parse ({exc})") from None
-        latv = pd.to_numeric(df[lat], errors="coerce").to_numpy(np.float64)
-        lonv = pd.to_numeric(df[lon], errors="coerce").to_numpy(np.float64)
-        bad = (np.abs(latv) > 90) & np.isfinite(latv)
-        if bad.any():
-            row = int(np.flatnonzero(bad)[0])
-            raise IngestError(
-                "lat", float(latv[row]), f"latitudes in [-90, 90] ({path}, row {row})"
-            )
-        try:
-            steps = t.dt.floor(time_step).dt.tz_localize(None)
-        except ValueError as exc:
-            raise IngestError("time_step", time_step, f"a pandas frequency ({exc})") from None
-        for n in wanted:
-            frames.append(
-                pd.DataFrame(
-                    {
-                        "var": n,
-                        "lat": latv,
-                        "lon": lonv,
-                        "t": steps.to_numpy("datetime64[s]"),
-                        "v": pd.to_numeric(df[n], errors="coerce").to_numpy(np.float64),
-                        "src": path,
-                    }
-                )
-            )
-    data = pd.concat(frames, ignore_index=True)
+    data = pd.concat([_long_table(p, names, time_step) for p in paths], ignore_index=True)
     ok = np.isfinite(data["lat"]) & np.isfinite(data["lon"]) & np.isfinite(data["v"])
-    ok &= data["t"].notna()
-    data = data[ok]
-    out = {}
-    for n, part in data.groupby("var", sort=True):
-        if part.empty:
-            continue
-        z = grid.point_to_zone(part["lat"].to_numpy(), part["lon"].to_numpy(), level)
-        times = np.unique(part["t"].to_numpy("datetime64[s]"))
-        ti = np.searchsorted(times, part["t"].to_numpy("datetime64[s]"))
-        key = ti.astype(np.int64) * (1 << 58) + np.asarray(z, dtype=np.int64)
-        ukey, inv = np.unique(key, return_inverse=True)
-        count = np.bincount(inv)
-        mean = np.bincount(inv, weights=part["v"].to_numpy()) / count
-        lat, lon = part["lat"].to_numpy(), part["lon"].to_numpy()
-        out[str(n)] = PointBins(
-            name=str(n),
-            times=times,
-            tindex=(ukey >> 58).astype(np.int64),
-            zones=(ukey & ((1 << 58) - 1)).astype(np.uint64),
-            mean=mean,
-            count=count.astype(np.float64),
-            bbox=(float(lon.min()), float(lat.min()), float(lon.max()), float(lat.max())),
-            source=",".join(sorted(set(part["src"]))),
-        )
+    data = data[ok & data["t"].notna()]
+    out = {
+        str(n): _bin(str(n), part, level)
+        for n, part in data.groupby("var", sort=True)
+        if not part.empty
+    }
     if not out:
         raise IngestError("source", ",".join(paths), "points with finite lat, lon and values")
     return out

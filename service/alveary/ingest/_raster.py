@@ -12,10 +12,13 @@ import threading
 import warnings
 from dataclasses import dataclass, field
 from datetime import datetime
+from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
 import numpy as np
+from numpy.typing import NDArray
+from pyproj import CRS, Transformer
 
 from alveary._errors import IngestError
 
@@ -87,9 +90,7 @@ class RasterSource:
     # -- geometry --------------------------------------------------------------------
     @property
     def geographic(self) -> bool:
-        from pyproj import CRS
-
-        return CRS.from_wkt(self.crs_wkt).is_geographic
+        return bool(CRS.from_wkt(self.crs_wkt).is_geographic)
 
     @property
     def pixel_size(self) -> tuple[float, float]:
@@ -115,8 +116,6 @@ class RasterSource:
 
     def lonlat_bounds(self) -> tuple[float, float, float, float]:
         """``(west, south, east, north)`` in degrees (west > east: crosses 180)."""
-        from pyproj import CRS, Transformer
-
         w, s, e, n = self.bounds()
         crs = CRS.from_wkt(self.crs_wkt)
         if crs.is_geographic:
@@ -126,7 +125,8 @@ class RasterSource:
             e = ((e + 180.0) % 360.0) - 180.0
             return (w, max(-90.0, s), e, min(90.0, n))
         tr = Transformer.from_crs(crs, "EPSG:4326", always_xy=True)
-        return tuple(float(v) for v in tr.transform_bounds(w, s, e, n, densify_pts=21))
+        w2, s2, e2, n2 = tr.transform_bounds(w, s, e, n, densify_pts=21)
+        return (float(w2), float(s2), float(e2), float(n2))
 
     def is_global(self) -> bool:
         w, s, e, n = self.lonlat_bounds()
@@ -134,8 +134,6 @@ class RasterSource:
 
     def pixel_index(self, lat: np.ndarray, lon: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Row and column of the pixel holding each point (-1 outside the raster)."""
-        from pyproj import CRS
-
         crs = CRS.from_wkt(self.crs_wkt)
         lat = np.asarray(lat, dtype=np.float64)
         lon = np.asarray(lon, dtype=np.float64)
@@ -188,29 +186,25 @@ class RasterSource:
         return out
 
 
-def _is_plain_lonlat(crs) -> bool:
+def _is_plain_lonlat(crs: CRS) -> bool:
     # WGS84 (or an ellipsoid close enough for pixel lookup) with lon/lat degrees
     try:
-        return crs.to_epsg() in (4326, 4979, 4269, 4258) or crs.datum.name.startswith(
-            "World Geodetic System 1984"
-        )
+        if crs.to_epsg() in (4326, 4979, 4269, 4258):
+            return True
+        return crs.datum is not None and crs.datum.name.startswith("World Geodetic System 1984")
     except Exception:  # pragma: no cover - pyproj edge cases
         return False
 
 
-_TRANSFORMERS = threading.local()
+def _transformer(wkt: str) -> Transformer:
+    """A lon/lat -> source CRS transformer for the calling thread (pyproj transformers
+    must not be shared between threads)."""
+    return _thread_transformer(wkt, threading.get_ident())
 
 
-def _transformer(wkt: str):
-    from pyproj import Transformer
-
-    cache = getattr(_TRANSFORMERS, "cache", None)
-    if cache is None:
-        cache = _TRANSFORMERS.cache = {}
-    tr = cache.get(wkt)
-    if tr is None:
-        tr = cache[wkt] = Transformer.from_crs("EPSG:4326", wkt, always_xy=True)
-    return tr
+@lru_cache(maxsize=64)
+def _thread_transformer(wkt: str, thread: int) -> Transformer:
+    return Transformer.from_crs("EPSG:4326", wkt, always_xy=True)
 
 
 def _nearest_index(centres: np.ndarray, v: np.ndarray) -> np.ndarray:
@@ -243,7 +237,7 @@ def _read_gtiff(path: str, band: int, rows: slice, cols: slice) -> np.ndarray:
 
     with rasterio.open(path) as ds:
         win = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
-        return ds.read(band, window=win)
+        return np.asarray(ds.read(band, window=win))
 
 
 def _gtiff_info(path: str) -> dict[str, Any]:
@@ -288,9 +282,10 @@ def _tiff_time(text: str | None) -> np.datetime64 | None:
     return None
 
 
-def _check_same_grid(name: str, first: tuple[str, dict], other: tuple[str, dict]) -> None:
+def _check_same_grid(
+    name: str, first: tuple[str, dict[str, Any]], other: tuple[str, dict[str, Any]]
+) -> None:
     (p0, a), (p1, b) = first, other
-    from pyproj import CRS
 
     same = (
         a["x"].shape == b["x"].shape
@@ -307,16 +302,23 @@ def _check_same_grid(name: str, first: tuple[str, dict], other: tuple[str, dict]
         )
 
 
-def open_geotiffs(paths: list[str], names: list[str] | None) -> dict[str, RasterSource]:
-    """GeoTIFF files as variables over time.
+def _no_time(path: str) -> IngestError:
+    return IngestError(
+        "time",
+        None,
+        message=(
+            f"{path} has no time axis (no CF time dimension, no date in the file name, no "
+            "TIFFTAG_DATETIME); give the instant its values hold with --time, "
+            "e.g. --time 2024-06-01T00:00:00Z"
+        ),
+    )
 
-    With one ``--variable`` name, every file is a time step of that variable. Without,
-    a single-band file is a variable named after the file (its date removed), and
-    files sharing that name are its time steps; a multi-band file gives one variable
-    per band (``<name>_b<k>`` or the band description).
-    """
-    infos = [(p, _gtiff_info(p)) for p in paths]
-    groups: dict[str, list[tuple[str, int, dict]]] = {}
+
+def _group_geotiffs(
+    infos: list[tuple[str, dict[str, Any]]], names: list[str] | None
+) -> dict[str, list[tuple[str, int, dict[str, Any]]]]:
+    """Variables and their (path, band, info) members, by the naming rules."""
+    groups: dict[str, list[tuple[str, int, dict[str, Any]]]] = {}
     for path, info in infos:
         if names and len(names) == 1:
             if info["count"] != 1:
@@ -328,11 +330,11 @@ def open_geotiffs(paths: list[str], names: list[str] | None) -> dict[str, Raster
         base = stem_without_date(path)
         if info["count"] == 1:
             groups.setdefault(base, []).append((path, 1, info))
-        else:
-            for k in range(1, info["count"] + 1):
-                desc = (info["descriptions"] or [None] * info["count"])[k - 1]
-                vname = stem_without_date(desc) if desc else f"{base}_b{k}"
-                groups.setdefault(vname, []).append((path, k, info))
+            continue
+        for k in range(1, info["count"] + 1):
+            desc = (info["descriptions"] or [None] * info["count"])[k - 1]
+            vname = stem_without_date(desc) if desc else f"{base}_b{k}"
+            groups.setdefault(vname, []).append((path, k, info))
     if names and len(names) > 1:
         unknown = sorted(set(names) - set(groups))
         if unknown:
@@ -340,54 +342,77 @@ def open_geotiffs(paths: list[str], names: list[str] | None) -> dict[str, Raster
                 "variable", unknown[0], f"one of the variables in the files: {sorted(groups)}"
             )
         groups = {k: v for k, v in groups.items() if k in names}
-    out = {}
-    for vname, members in groups.items():
-        first = members[0]
-        for m in members[1:]:
-            _check_same_grid(vname, (first[0], first[2]), (m[0], m[2]))
-        times = []
-        for path, _, info in members:
-            t = date_from_name(path) or _tiff_time(info["time"])
-            times.append(t)
-        if any(t is None for t in times):
-            if len(members) > 1:
-                undated = [m[0] for m, t in zip(members, times, strict=True) if t is None]
-                raise IngestError(
-                    "source",
-                    undated[0],
-                    "files with a date in the name (YYYY-MM-DD) or a TIFFTAG_DATETIME, "
-                    "so that they can be put in time order",
-                )
-            times = [np.datetime64(0, "s")]
-        order = np.argsort(np.array(times, dtype="datetime64[s]"), kind="stable")
-        tarr = np.array(times, dtype="datetime64[s]")[order]
-        if tarr.size > 1 and (np.diff(tarr.astype(np.int64)) == 0).any():
-            dup = str(tarr[np.flatnonzero(np.diff(tarr.astype(np.int64)) == 0)[0]])
-            raise IngestError("source", vname, f"one file per time step (two files at {dup})")
-        info = first[2]
-        band = first[1]
-        scale = (info["scales"] or (1.0,))[band - 1] or 1.0
-        offset = (info["offsets"] or (0.0,))[band - 1] or 0.0
-        dtype = np.dtype(info["dtype"])
-        packing = None
-        if dtype.kind in "iu" and (scale != 1.0 or offset != 0.0):
-            packing = {"dtype": dtype.name, "scale_factor": scale, "add_offset": offset}
-        out[vname] = RasterSource(
-            name=vname,
-            kind="gtiff",
-            crs_wkt=info["crs"],
-            x=info["x"],
-            y=info["y"],
-            times=tarr,
-            steps=tuple((members[i][0], members[i][1]) for i in order),
-            nodata=info["nodata"],
-            scale=float(scale),
-            offset=float(offset),
-            units=(info["units"] or ("",))[band - 1] or "1",
-            long_name=vname.replace("_", " "),
-            packing=packing,
+    return groups
+
+
+def _member_times(
+    vname: str, members: list[tuple[str, int, dict[str, Any]]], undated: np.datetime64 | None
+) -> NDArray[np.datetime64]:
+    times = [date_from_name(path) or _tiff_time(info["time"]) for path, _, info in members]
+    missing = [m[0] for m, t in zip(members, times, strict=True) if t is None]
+    if missing and len(members) > 1:
+        raise IngestError(
+            "source",
+            missing[0],
+            "files with a date in the name (YYYY-MM-DD) or a TIFFTAG_DATETIME, "
+            "so that they can be put in time order",
         )
-    return out
+    if missing:
+        if undated is None:
+            raise _no_time(missing[0])
+        times = [undated]
+    tarr = np.array(times, dtype="datetime64[s]")
+    if tarr.size > 1 and (np.diff(np.sort(tarr).astype(np.int64)) == 0).any():
+        dup = str(np.sort(tarr)[np.flatnonzero(np.diff(np.sort(tarr).astype(np.int64)) == 0)[0]])
+        raise IngestError("source", vname, f"one file per time step (two files at {dup})")
+    return tarr
+
+
+def _geotiff_source(
+    vname: str, members: list[tuple[str, int, dict[str, Any]]], undated: np.datetime64 | None
+) -> RasterSource:
+    first = members[0]
+    for m in members[1:]:
+        _check_same_grid(vname, (first[0], first[2]), (m[0], m[2]))
+    times = _member_times(vname, members, undated)
+    order = np.argsort(times, kind="stable")
+    info, band = first[2], first[1]
+    scale = (info["scales"] or (1.0,))[band - 1] or 1.0
+    offset = (info["offsets"] or (0.0,))[band - 1] or 0.0
+    dtype = np.dtype(info["dtype"])
+    packing = None
+    if dtype.kind in "iu" and (scale != 1.0 or offset != 0.0):
+        packing = {"dtype": dtype.name, "scale_factor": scale, "add_offset": offset}
+    return RasterSource(
+        name=vname,
+        kind="gtiff",
+        crs_wkt=info["crs"],
+        x=info["x"],
+        y=info["y"],
+        times=times[order],
+        steps=tuple((members[i][0], members[i][1]) for i in order),
+        nodata=info["nodata"],
+        scale=float(scale),
+        offset=float(offset),
+        units=(info["units"] or ("",))[band - 1] or "1",
+        long_name=vname.replace("_", " "),
+        packing=packing,
+    )
+
+
+def open_geotiffs(
+    paths: list[str], names: list[str] | None, undated: np.datetime64 | None = None
+) -> dict[str, RasterSource]:
+    """GeoTIFF files as variables over time.
+
+    With one ``--variable`` name, every file is a time step of that variable. Without,
+    a single-band file is a variable named after the file (its date removed), and
+    files sharing that name are its time steps; a multi-band file gives one variable
+    per band (``<name>_b<k>`` or the band description). A file without a date is one
+    step at ``undated`` (an error if that is None).
+    """
+    groups = _group_geotiffs([(p, _gtiff_info(p)) for p in paths], names)
+    return {v: _geotiff_source(v, members, undated) for v, members in groups.items()}
 
 
 # -- NetCDF / Zarr through xarray ------------------------------------------------------
@@ -395,7 +420,7 @@ _DS_LOCK = threading.Lock()
 _DATASETS: dict[tuple[str, str | None], Any] = {}
 
 
-def _open_ds(path: str, engine: str | None):
+def _open_ds(path: str, engine: str | None) -> Any:
     """An opened dataset, kept for the process (xarray locks its file reads itself).
 
     Worker threads come and go (dask.distributed recycles them), so the cache is per
@@ -411,13 +436,12 @@ def _open_ds(path: str, engine: str | None):
                 for old in _DATASETS.values():
                     old.close()
                 _DATASETS.clear()
-            kw = {"mask_and_scale": False, "decode_times": True}
             if engine == "zarr":
                 with warnings.catch_warnings():  # sources without consolidated metadata
                     warnings.simplefilter("ignore", RuntimeWarning)
-                    ds = xr.open_zarr(path, **kw)
+                    ds = xr.open_zarr(path, mask_and_scale=False, decode_times=True)
             else:
-                ds = xr.open_dataset(path, engine=engine, **kw)
+                ds = xr.open_dataset(path, engine=engine, mask_and_scale=False, decode_times=True)
             _DATASETS[key] = ds
         return ds
 
@@ -426,8 +450,9 @@ def _read_xarray(src: RasterSource, path: str, sel: Any, rows: slice, cols: slic
     var, tindex = sel
     ds = _open_ds(path, src.engine)
     da = ds[var]
+    assert src.dims is not None
     ydim, xdim = src.dims
-    isel = {ydim: rows, xdim: cols}
+    isel: dict[str, slice | int] = {ydim: rows, xdim: cols}
     if src.time_dim is not None and tindex is not None:
         isel[src.time_dim] = int(tindex)
     da = da.isel(isel)
@@ -437,9 +462,7 @@ def _read_xarray(src: RasterSource, path: str, sel: Any, rows: slice, cols: slic
     return np.asarray(da.transpose(ydim, xdim).values)
 
 
-def _find_axes(ds, da, path: str):
-    from pyproj import CRS
-
+def _find_axes(ds: Any, da: Any, path: str) -> tuple[str, str, str | None, CRS]:
     def role(name: str) -> str | None:
         c = ds[name] if name in ds.variables else None
         attrs = dict(c.attrs) if c is not None else {}
@@ -478,50 +501,160 @@ def _find_axes(ds, da, path: str):
             "source", path, f"variable {da.name!r} with latitude/longitude or y/x dimensions"
         )
     if roles[ydim] == "lat" and roles[xdim] == "lon":
-        crs = CRS.from_epsg(4326)
-    else:
-        crs = None
-        gm = da.attrs.get("grid_mapping")
-        if gm and gm in ds.variables:
-            attrs = dict(ds[gm].attrs)
-            for key in ("crs_wkt", "spatial_ref"):
-                if key in attrs:
-                    try:
-                        crs = CRS.from_wkt(str(attrs[key]))
-                    except Exception:
-                        crs = None
-                    break
-            if crs is None:
+        return str(ydim), str(xdim), tdim, CRS.from_epsg(4326)
+    return str(ydim), str(xdim), tdim, _grid_mapping_crs(ds, da, path)
+
+
+def _grid_mapping_crs(ds: Any, da: Any, path: str) -> CRS:
+    """The CRS of a CF ``grid_mapping`` variable (WKT, or CF projection attributes)."""
+    gm = da.attrs.get("grid_mapping")
+    if gm and gm in ds.variables:
+        attrs = dict(ds[gm].attrs)
+        for key in ("crs_wkt", "spatial_ref"):
+            if key in attrs:
                 try:
-                    crs = CRS.from_cf(attrs)
+                    return CRS.from_wkt(str(attrs[key]))
                 except Exception:
-                    crs = None
-        if crs is None:
-            raise IngestError(
-                "source",
-                path,
-                f"a CRS for variable {da.name!r}: projected x/y axes need a CF grid_mapping "
-                "(crs_wkt, spatial_ref or CF projection attributes) pyproj can read "
-                "(unknown CRS)",
-            )
-    return ydim, xdim, tdim, crs
+                    break
+        try:
+            return CRS.from_cf(attrs)
+        except Exception:
+            pass
+    raise IngestError(
+        "source",
+        path,
+        f"a CRS for variable {da.name!r}: projected x/y axes need a CF grid_mapping "
+        "(crs_wkt, spatial_ref or CF projection attributes) pyproj can read "
+        "(unknown CRS)",
+    )
 
 
-def open_xarray_sources(paths: list[str], names: list[str] | None) -> dict[str, RasterSource]:
-    """NetCDF files or Zarr stores: each ``--variable`` over the files' time steps."""
+def _engine(path: str) -> str | None:
+    zarr_like = (
+        path.rstrip("/").endswith(".zarr")
+        or Path(path, "zarr.json").exists()
+        or Path(path, ".zgroup").exists()
+    )
+    return "zarr" if zarr_like else None
+
+
+def _coordinate(ds: Any, da: Any, dim: str, path: str, name: str) -> NDArray[np.float64]:
+    arr = (
+        np.asarray(ds[dim].values, dtype=np.float64)
+        if dim in ds.variables
+        else np.arange(da.sizes[dim], dtype=np.float64)
+    )
+    if arr.size > 1 and not (np.all(np.diff(arr) > 0) or np.all(np.diff(arr) < 0)):
+        raise IngestError("source", path, f"a monotonic {dim} axis for {name!r}")
+    return arr
+
+
+def _variable_times(
+    ds: Any, path: str, n: str, tdim: str | None, undated: np.datetime64 | None
+) -> tuple[NDArray[np.datetime64], list[tuple[str, Any]]]:
+    if tdim is not None:
+        tvals = np.asarray(ds[tdim].values)
+        if not np.issubdtype(tvals.dtype, np.datetime64):
+            raise IngestError("source", path, f"a CF time axis for {n!r} ({tdim})")
+        times = tvals.astype("datetime64[s]")
+        return times, [(path, (n, k)) for k in range(times.size)]
+    t = date_from_name(path)
+    if t is None:
+        if undated is None:
+            raise _no_time(path)
+        t = undated
+    return np.array([t], dtype="datetime64[s]"), [(path, (n, None))]
+
+
+def _packing(da: Any) -> dict[str, Any]:
+    """Scale, offset, no-data and packing of a variable as stored (CF attributes)."""
+    attrs = dict(da.attrs)
+    scale = float(attrs.get("scale_factor", 1.0))
+    offset = float(attrs.get("add_offset", 0.0))
+    nodata = attrs.get("_FillValue", attrs.get("missing_value"))
+    if nodata is None:
+        nodata = da.encoding.get("_FillValue")
+    enc = np.dtype(da.dtype)
+    packing = None
+    if enc.kind in "iu" and (scale != 1.0 or offset != 0.0):
+        packing = {"dtype": enc.name, "scale_factor": scale, "add_offset": offset}
+    return {
+        "nodata": None if nodata is None else float(np.asarray(nodata).ravel()[0]),
+        "scale": scale,
+        "offset": offset,
+        "units": str(attrs.get("units", "1")),
+        "long_name": str(attrs.get("long_name", da.name)),
+        "packing": packing,
+    }
+
+
+def _xarray_member(
+    ds: Any, path: str, n: str, engine: str | None, undated: np.datetime64 | None
+) -> dict[str, Any]:
+    """Everything one file says about variable ``n``: grid, CRS, times, packing."""
+    da = ds[n]
+    ydim, xdim, tdim, crs = _find_axes(ds, da, path)
+    times, steps = _variable_times(ds, path, n, tdim, undated)
+    return {
+        "crs": crs.to_wkt(),
+        "x": _coordinate(ds, da, xdim, path, n),
+        "y": _coordinate(ds, da, ydim, path, n),
+        "times": times,
+        "steps": steps,
+        "dims": (ydim, xdim),
+        "tdim": tdim,
+        "engine": engine,
+        **_packing(da),
+    }
+
+
+def _xarray_source(n: str, members: list[tuple[str, dict[str, Any]]]) -> RasterSource:
+    """One variable over the files that hold it, in time order."""
+    first = members[0]
+    for m in members[1:]:
+        _check_same_grid(n, first, m)
+    times = np.concatenate([m[1]["times"] for m in members])
+    steps = [s for m in members for s in m[1]["steps"]]
+    order = np.argsort(times, kind="stable")
+    times = times[order]
+    if times.size > 1 and (np.diff(times.astype(np.int64)) == 0).any():
+        raise IngestError("source", n, "distinct time steps across files")
+    info = first[1]
+    return RasterSource(
+        name=n,
+        kind="xarray",
+        crs_wkt=info["crs"],
+        x=info["x"],
+        y=info["y"],
+        times=times,
+        steps=tuple(steps[i] for i in order),
+        nodata=info["nodata"],
+        scale=info["scale"],
+        offset=info["offset"],
+        units=info["units"],
+        long_name=info["long_name"],
+        packing=info["packing"],
+        dims=info["dims"],
+        time_dim=info["tdim"],
+        engine=info["engine"],
+    )
+
+
+def open_xarray_sources(
+    paths: list[str], names: list[str] | None, undated: np.datetime64 | None = None
+) -> dict[str, RasterSource]:
+    """NetCDF files or Zarr stores: each ``--variable`` over the files' time steps.
+
+    A variable without a time dimension in a file without a date in its name is one
+    step at ``undated`` (an error if that is None).
+    """
     if not names:
         raise IngestError(
             "variable", None, "one or more --variable names for NetCDF or Zarr sources"
         )
-    per_var: dict[str, list[tuple[str, dict]]] = {n: [] for n in names}
+    per_var: dict[str, list[tuple[str, dict[str, Any]]]] = {n: [] for n in names}
     for path in paths:
-        engine = (
-            "zarr"
-            if path.rstrip("/").endswith(".zarr")
-            or Path(path, "zarr.json").exists()
-            or Path(path, ".zgroup").exists()
-            else None
-        )
+        engine = _engine(path)
         try:
             ds = _open_ds(path, engine)
         except Exception as exc:
@@ -534,92 +667,8 @@ def open_xarray_sources(paths: list[str], names: list[str] | None) -> dict[str, 
                 f"variables of {path}: {sorted(str(v) for v in ds.data_vars)}",
             )
         for n in present:
-            da = ds[n]
-            ydim, xdim, tdim, crs = _find_axes(ds, da, path)
-            x = (
-                np.asarray(ds[xdim].values, dtype=np.float64)
-                if xdim in ds.variables
-                else np.arange(da.sizes[xdim], dtype=np.float64)
-            )
-            y = (
-                np.asarray(ds[ydim].values, dtype=np.float64)
-                if ydim in ds.variables
-                else np.arange(da.sizes[ydim], dtype=np.float64)
-            )
-            for axis, arr in (("x", x), ("y", y)):
-                if arr.size > 1 and not (np.all(np.diff(arr) > 0) or np.all(np.diff(arr) < 0)):
-                    raise IngestError("source", path, f"a monotonic {axis} axis for {n!r}")
-            if tdim is not None:
-                tvals = np.asarray(ds[tdim].values)
-                if not np.issubdtype(tvals.dtype, np.datetime64):
-                    raise IngestError("source", path, f"a CF time axis for {n!r} ({tdim})")
-                times = tvals.astype("datetime64[s]")
-                steps = [(path, (n, k)) for k in range(times.size)]
-            else:
-                t = date_from_name(path)
-                times = np.array([t if t is not None else np.datetime64(0, "s")])
-                steps = [(path, (n, None))]
-            attrs = dict(da.attrs)
-            enc_dtype = np.dtype(da.dtype)
-            scale = float(attrs.get("scale_factor", 1.0))
-            offset = float(attrs.get("add_offset", 0.0))
-            nodata = attrs.get("_FillValue", attrs.get("missing_value"))
-            if nodata is None:
-                nodata = da.encoding.get("_FillValue")
-            packing = None
-            if enc_dtype.kind in "iu" and (scale != 1.0 or offset != 0.0):
-                packing = {"dtype": enc_dtype.name, "scale_factor": scale, "add_offset": offset}
-            per_var[n].append(
-                (
-                    path,
-                    {
-                        "crs": crs.to_wkt(),
-                        "x": x,
-                        "y": y,
-                        "times": times,
-                        "steps": steps,
-                        "dims": (ydim, xdim),
-                        "tdim": tdim,
-                        "nodata": None if nodata is None else float(np.asarray(nodata).ravel()[0]),
-                        "scale": scale,
-                        "offset": offset,
-                        "units": str(attrs.get("units", "1")),
-                        "long_name": str(attrs.get("long_name", n)),
-                        "packing": packing,
-                        "engine": engine,
-                    },
-                )
-            )
-    out = {}
-    for n, members in per_var.items():
-        if not members:
-            raise IngestError("variable", n, f"a variable present in the sources {paths}")
-        first = members[0]
-        for m in members[1:]:
-            _check_same_grid(n, first, m)
-        times = np.concatenate([m[1]["times"] for m in members])
-        steps = [s for m in members for s in m[1]["steps"]]
-        order = np.argsort(times, kind="stable")
-        times = times[order]
-        if times.size > 1 and (np.diff(times.astype(np.int64)) == 0).any():
-            raise IngestError("source", n, "distinct time steps across files")
-        info = first[1]
-        out[n] = RasterSource(
-            name=n,
-            kind="xarray",
-            crs_wkt=info["crs"],
-            x=info["x"],
-            y=info["y"],
-            times=times,
-            steps=tuple(steps[i] for i in order),
-            nodata=info["nodata"],
-            scale=info["scale"],
-            offset=info["offset"],
-            units=info["units"],
-            long_name=info["long_name"],
-            packing=info["packing"],
-            dims=info["dims"],
-            time_dim=info["tdim"],
-            engine=info["engine"],
-        )
-    return out
+            per_var[n].append((path, _xarray_member(ds, path, n, engine, undated)))
+    missing = [n for n, members in per_var.items() if not members]
+    if missing:
+        raise IngestError("variable", missing[0], f"a variable present in the sources {paths}")
+    return {n: _xarray_source(n, members) for n, members in per_var.items()}

@@ -24,7 +24,6 @@ from alveary import grid
 
 __all__ = ["aggregate_children", "child_weights", "descendant_weights", "stencil"]
 
-PENTAGON_AREA = 5.0 / 6.0
 # lattice offsets (dA, dB) of the six edge children around the central child (2a, 2b)
 _EDGE = ((1, 0), (0, 1), (-1, 1), (-1, 0), (0, -1), (1, -1))
 
@@ -44,15 +43,15 @@ def stencil(depth: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     >>> float(stencil(3)[2].sum()) == 4.0**3
     True
     """
-    cur = {(0, 0): 1.0}
+    cur: dict[tuple[int, int], float] = {(0, 0): 1.0}
     for _ in range(int(depth)):
         nxt: dict[tuple[int, int], float] = {}
-        for (p, q), w in cur.items():
+        for (p, q), share in cur.items():
             c = (2 * p, 2 * q)
-            nxt[c] = nxt.get(c, 0.0) + w
+            nxt[c] = nxt.get(c, 0.0) + share
             for dp, dq in _EDGE:
                 k = (c[0] + dp, c[1] + dq)
-                nxt[k] = nxt.get(k, 0.0) + 0.5 * w
+                nxt[k] = nxt.get(k, 0.0) + 0.5 * share
         cur = nxt
     keys = sorted(cur)
     dA = np.array([k[0] for k in keys], dtype=np.int64)
@@ -70,7 +69,7 @@ def child_weights(zones: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     live = w > 0
     if live.any():
         pent[live] = np.asarray(grid.is_pentagon(ids[live]))
-    w[pent] *= PENTAGON_AREA
+    w[pent] *= grid.PENTAGON_SHARE
     return ids, w
 
 
@@ -95,10 +94,10 @@ def _recursive(zones: np.ndarray, depth: int) -> tuple[np.ndarray, np.ndarray, n
         fine, finv = np.unique(cc, return_inverse=True)
         key = r * fine.size + finv
         ukey, kinv = np.unique(key, return_inverse=True)
-        w = np.bincount(kinv, weights=ww)
+        w = np.bincount(kinv, weights=ww).astype(np.float64)
         rows = ukey // fine.size
         ids = fine[ukey % fine.size]
-    w = w * np.where(np.asarray(grid.is_pentagon(ids)), PENTAGON_AREA, 1.0)
+    w = w * np.where(np.asarray(grid.is_pentagon(ids)), grid.PENTAGON_SHARE, 1.0)
     return rows, ids, w
 
 
@@ -180,9 +179,9 @@ def aggregate_children(
     if how == "sum":
         out = (vz * weights[None, :, :]).sum(axis=-1)
         out[covered == 0] = np.nan
-        return out
+        return np.asarray(out, dtype=np.float64)
     with np.errstate(invalid="ignore", divide="ignore"):
         out = (vz * wv).sum(axis=-1) / covered
         frac = covered / total[None, :]
     out[~(frac >= min_coverage) | (covered == 0)] = np.nan
-    return out
+    return np.asarray(out, dtype=np.float64)
