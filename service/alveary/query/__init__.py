@@ -21,7 +21,6 @@ from alveary.query._models import (
     Query,
     RadiusQuery,
     Selection,
-    check_lat_lon,
     parse_vars,
     parse_zone,
 )
@@ -56,7 +55,6 @@ __all__ = [
     "TimeSpec",
     "ZoneResult",
     "bbox_area",
-    "check_lat_lon",
     "execute",
     "format_time",
     "make_plan",

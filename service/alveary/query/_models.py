@@ -9,7 +9,6 @@ from __future__ import annotations
 import hashlib
 import math
 from dataclasses import dataclass, field
-from typing import Any
 
 import numpy as np
 
@@ -27,7 +26,6 @@ __all__ = [
     "Query",
     "RadiusQuery",
     "Selection",
-    "check_lat_lon",
     "parse_vars",
     "parse_zone",
 ]
@@ -73,33 +71,6 @@ def parse_zone(text: str, parameter: str = "zone") -> int:
     return value
 
 
-def check_lat_lon(lat: Any, lon: Any) -> tuple[np.ndarray, np.ndarray]:
-    """Check positions: latitude in [-90, 90], longitude in [-180, 180] (scalars or arrays).
-
-    Returns both as float64 arrays; the error names the first bad value and, for arrays,
-    its position.
-
-    >>> check_lat_lon(91, 0)
-    Traceback (most recent call last):
-    ...
-    alveary._errors.InvalidInput: lat is 91.0; allowed: [-90, 90]
-    >>> check_lat_lon([0, 10], [5, float("nan")])
-    Traceback (most recent call last):
-    ...
-    alveary._errors.InvalidInput: lon at position 1 is nan; allowed: [-180, 180]
-    """
-    out = []
-    for name, values, limit in (("lat", lat, 90), ("lon", lon, 180)):
-        arr = np.asarray(values, dtype=np.float64)
-        bad = ~(np.abs(arr) <= limit)  # NaN is bad too
-        if bad.any():
-            i = int(np.flatnonzero(bad)[0])
-            index = None if arr.ndim == 0 else i
-            raise InvalidInput(name, float(arr.flat[i]), f"[-{limit}, {limit}]", index=index)
-        out.append(arr)
-    return out[0], out[1]
-
-
 @dataclass(frozen=True)
 class Selection:
     """The parts every cube query shares: level, variables and time.
@@ -122,7 +93,7 @@ class PointQuery:
     op = "point"
 
     def __post_init__(self) -> None:
-        check_lat_lon(self.lat, self.lon)
+        grid.check_lat_lon(self.lat, self.lon)
 
     def key(self) -> str:
         return f"lat={self.lat!r};lon={self.lon!r}"
@@ -147,7 +118,7 @@ class DiskQuery:
         if self.zone is not None and (self.lat is not None or self.lon is not None):
             raise InvalidInput("zone", self.zone, "either zone, or lat and lon, not both")
         if self.zone is None:
-            check_lat_lon(self.lat, self.lon)
+            grid.check_lat_lon(self.lat, self.lon)
 
     def key(self) -> str:
         return f"k={self.k};lat={self.lat!r};lon={self.lon!r};zone={self.zone}"
@@ -165,7 +136,7 @@ class RadiusQuery:
     op = "radius"
 
     def __post_init__(self) -> None:
-        check_lat_lon(self.lat, self.lon)
+        grid.check_lat_lon(self.lat, self.lon)
         if not (math.isfinite(self.meters) and self.meters >= 0):
             raise InvalidInput("meters", self.meters, ">= 0")
 
@@ -217,7 +188,7 @@ class PointsQuery:
         lon = np.asarray(self.lon, dtype=np.float64).ravel()
         if lat.shape != lon.shape:
             raise InvalidInput("lon", f"{lon.size} values", f"as many as lat ({lat.size})")
-        lat, lon = check_lat_lon(lat, lon)
+        lat, lon = grid.check_lat_lon(lat, lon)
         object.__setattr__(self, "lat", lat)
         object.__setattr__(self, "lon", lon)
 
