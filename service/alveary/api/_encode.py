@@ -16,7 +16,7 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from alveary import grid
-from alveary.query import StatsResult, ZoneResult, format_time
+from alveary.query import StatsResult, TimeAxis, ZoneResult, time_axis_json
 
 __all__ = ["FORMATS", "MEDIA_TYPES", "encode", "negotiate"]
 
@@ -75,13 +75,18 @@ def _variables_json(result: ZoneResult | StatsResult) -> dict[str, dict[str, str
 
 
 def _header(result: ZoneResult | StatsResult) -> dict[str, Any]:
-    return {
+    body: dict[str, Any] = {
         "cube": result.cube,
         "version": result.version,
         "level": result.level,
         "variables": _variables_json(result),
-        "times": format_time(result.times),
     }
+    # times; with calendar periods also time_bounds and time_steps; for a climatology
+    # the keys ("month" or "dayofyear") instead of times
+    body.update(time_axis_json(result.times, result.axis))
+    if result.analysis:
+        body["analysis"] = result.analysis
+    return body
 
 
 def _zone_columns(result: ZoneResult) -> dict[str, list[Any]]:
@@ -164,14 +169,31 @@ def _masked(a: np.ndarray) -> pa.Array:
     return pa.array(a, mask=np.isnan(a))
 
 
+def _time_columns(times: np.ndarray, axis: TimeAxis | None, repeat: int) -> dict[str, pa.Array]:
+    """The long form's time columns, the whole axis tiled ``repeat`` times: ``time``; for
+    periods also ``time_end`` and ``time_steps``; for a climatology its key instead."""
+    if axis is not None and axis.keys is not None and axis.key is not None:
+        return {axis.key: pa.array(np.tile(axis.keys.astype(np.int64), repeat), pa.int64())}
+    stamp = pa.timestamp("s", tz="UTC")
+    cols = {"time": pa.array(np.tile(times.astype("datetime64[s]"), repeat), stamp)}
+    if axis is not None and axis.bounds is not None:
+        end = axis.bounds[:, 1].astype("datetime64[s]")
+        cols["time_end"] = pa.array(np.tile(end, repeat), stamp)
+    if axis is not None and axis.steps is not None:
+        cols["time_steps"] = pa.array(np.tile(axis.steps.astype(np.int64), repeat), pa.int64())
+    return cols
+
+
 def _zone_table(result: ZoneResult) -> pa.Table:
-    n, t = result.zones.size, result.times.size
-    time = result.times.astype("datetime64[s]")
+    n = result.zones.size
+    time_cols = _time_columns(result.times, result.axis, n)
+    t = len(next(iter(time_cols.values()))) // n if n else 0
     cols: dict[str, pa.Array] = {
         "zone": pa.array(np.repeat(result.zones.astype(np.uint64), t), pa.uint64()),
-        "time": pa.array(np.tile(time, n), pa.timestamp("s", tz="UTC")),
+        **time_cols,
     }
-    fields = [pa.field("zone", pa.uint64()), pa.field("time", pa.timestamp("s", tz="UTC"))]
+    fields = [pa.field("zone", pa.uint64())]
+    fields += [pa.field(name, col.type) for name, col in time_cols.items()]
     for name, info in result.variables.items():
         cols[name] = _masked(result.values[name].T.reshape(-1))
         meta = {"units": info.units, "long_name": info.long_name}
@@ -186,11 +208,11 @@ def _zone_table(result: ZoneResult) -> pa.Table:
 
 
 def _stats_table(result: StatsResult) -> pa.Table:
-    t = result.times.size
     names = list(result.variables)
-    time = result.times.astype("datetime64[s]")
+    time_cols = _time_columns(result.times, result.axis, len(names))
+    t = len(next(iter(time_cols.values()))) // len(names) if names else 0
     cols: dict[str, pa.Array] = {
-        "time": pa.array(np.tile(time, len(names)), pa.timestamp("s", tz="UTC")),
+        **time_cols,
         "variable": pa.array(np.repeat(np.array(names, dtype=object), t).tolist(), pa.string()),
     }
     for stat in (*result.names, "area_m2"):
@@ -207,13 +229,16 @@ def _stats_table(result: StatsResult) -> pa.Table:
 
 def _schema_meta(result: ZoneResult | StatsResult) -> dict[str, str]:
     units = {v.name: v.units for v in result.variables.values()}
-    return {
+    meta = {
         "cube": result.cube,
         "version": result.version,
         "level": str(result.level),
         "units": orjson.dumps(units).decode(),
         "variables": orjson.dumps(_variables_json(result)).decode(),
     }
+    if result.analysis:
+        meta["analysis"] = orjson.dumps(result.analysis).decode()
+    return meta
 
 
 def _arrow(table: pa.Table) -> bytes:

@@ -24,12 +24,19 @@ from alveary.api._service import Service
 from alveary.api.deps import (
     CUBE_FORMATS,
     AcceptHeader,
+    AggParam,
+    AnomalyParam,
     BboxParam,
+    ClimatologyParam,
     CubeId,
     DatetimeParam,
+    EveryParam,
+    FocalKParam,
+    FocalParam,
     FormatDep,
     FormatParam,
     IfNoneMatch,
+    KernelParam,
     KParam,
     LatParam,
     LevelParam,
@@ -172,10 +179,29 @@ async def query_point(
     f: FormatParam = None,
     accept: AcceptHeader = None,
     if_none_match: IfNoneMatch = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
 ) -> Response:
     # Parameters are flat here (no sub-dependencies): this is the hot path of dashboards.
     service: Service = request.app.state.service
-    sel = make_selection(level, vars_, time)
+    sel = make_selection(
+        level,
+        vars_,
+        time,
+        focal=focal,
+        focal_k=focal_k,
+        kernel=kernel,
+        every=every,
+        agg=agg,
+        climatology=climatology,
+        anomaly=anomaly,
+        max_focal_k=service.limits.max_focal_k,
+    )
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)
     return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))

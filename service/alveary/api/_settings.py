@@ -99,6 +99,7 @@ class Settings(BaseSettings):
     max_points: int = Field(Limits.max_points, ge=1)
     max_cells: int = Field(Limits.max_cells, ge=1)
     max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
+    max_focal_k: int = Field(Limits.max_focal_k, ge=1, description="Largest focal_k allowed.")
     max_body_bytes: int = Field(8 * 2**20, ge=1024)
 
     _split_origins = field_validator("cors_origins", mode="before")(_split)
@@ -118,6 +119,7 @@ class Settings(BaseSettings):
             max_points=self.max_points,
             max_cells=self.max_cells,
             max_read_bytes=self.max_read_bytes,
+            max_focal_k=self.max_focal_k,
         )
 
     def store_dir(self) -> Path:

@@ -7,10 +7,19 @@ read by :func:`execute`, the only step that touches a store. What the layer need
 is written down as the protocols :class:`ServedCube` and :class:`CubeSnapshot`.
 """
 
+from alveary.query._analysis import (
+    AnalysedValues,
+    AnalysisPlan,
+    analysis_steps,
+    apply_analysis,
+    plan_analysis,
+    time_axis_json,
+)
 from alveary.query._catalog import Catalog, CubeSource
 from alveary.query._cube import CubeSnapshot, ServedCube
 from alveary.query._edr_params import CRS84, WITHIN_UNITS
 from alveary.query._execute import execute
+from alveary.query._focal import FOCAL_STATISTICS, MAX_FOCAL_K, FocalSpec, parse_focal
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
 from alveary.query._models import (
     BboxQuery,
@@ -25,21 +34,38 @@ from alveary.query._models import (
     parse_zone,
 )
 from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
-from alveary.query._result import ResultVariable, StatsResult, ZoneResult
+from alveary.query._result import ResultVariable, StatsResult, TimeAxis, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._steps import select_steps, step_bounds
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
+from alveary.query._timeagg import (
+    AGGREGATES,
+    CLIMATOLOGY_KEYS,
+    EVERY,
+    MIN_YEARS,
+    TimeAggregation,
+    parse_time_aggregation,
+)
 
 __all__ = [
+    "AGGREGATES",
+    "CLIMATOLOGY_KEYS",
     "CRS84",
+    "EVERY",
+    "FOCAL_STATISTICS",
+    "MAX_FOCAL_K",
+    "MIN_YEARS",
     "STATISTICS",
     "WITHIN_UNITS",
+    "AnalysedValues",
+    "AnalysisPlan",
     "Area",
     "BboxQuery",
     "Catalog",
     "CubeSnapshot",
     "CubeSource",
     "DiskQuery",
+    "FocalSpec",
     "Limits",
     "Plan",
     "PointQuery",
@@ -52,21 +78,29 @@ __all__ = [
     "Selection",
     "ServedCube",
     "StatsResult",
+    "TimeAggregation",
+    "TimeAxis",
     "TimeSpec",
     "ZoneResult",
+    "analysis_steps",
+    "apply_analysis",
     "bbox_area",
     "execute",
     "format_time",
     "make_plan",
     "parse_bbox",
     "parse_datetime",
+    "parse_focal",
     "parse_polygon",
     "parse_stats",
+    "parse_time_aggregation",
     "parse_vars",
     "parse_zone",
+    "plan_analysis",
     "resolve",
     "select_steps",
     "select_times",
     "step_bounds",
+    "time_axis_json",
     "zone_statistics",
 ]
