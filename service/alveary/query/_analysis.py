@@ -121,10 +121,16 @@ class AnalysisPlan:
 
     @property
     def nbytes(self) -> int:
-        total = self.targets.nbytes + self.read_zones.nbytes
-        if self.windows is not None:
-            total += sum(t.source.nbytes + 3 * t.out.nbytes for t in self.windows.tiles)
-            total += 5 * self.windows.exact.members.nbytes
+        """Memory held beyond the plan's own zone arrays (``targets`` and ``read_zones``
+        are those arrays): the windows' index arrays."""
+        if self.windows is None:
+            return 0
+        total = sum(
+            t.source.nbytes + t.rows.nbytes + t.cols.nbytes + t.out.nbytes
+            for t in self.windows.tiles
+        )
+        ex = self.windows.exact
+        total += ex.members.nbytes + ex.steps.nbytes + ex.area.nbytes + 3 * ex.out.nbytes
         return int(total)
 
 

@@ -170,7 +170,8 @@ class Plan:
     @property
     def nbytes(self) -> int:
         """An estimate of the memory the plan holds: its arrays plus per-object overheads."""
-        total = 4096 + self.zones.nbytes + self.read_zones.nbytes
+        total = 4096 + self.zones.nbytes
+        total += 0 if self.read_zones is self.zones else self.read_zones.nbytes
         total += 0 if self.take is None else self.take.nbytes
         total += sum(a.nbytes for a in self.extra.values())
         total += 0 if self.analysis is None else self.analysis.nbytes
