@@ -126,6 +126,8 @@ def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
         cache=service.answers,
         current_version=service.current_version,
         headers=service.headers,
+        credentials=service.credentials,
+        readable=service.readable,
     )
     if settings.cors_origins:
         app.add_middleware(
