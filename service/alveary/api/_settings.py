@@ -23,6 +23,7 @@ Keys of private cubes may also come from the keys file (``api_keys_file``), see
 from __future__ import annotations
 
 import logging
+import math
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
@@ -119,6 +120,19 @@ class Settings(BaseSettings):
     max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
     max_body_bytes: int = Field(8 * 2**20, ge=1024)
 
+    rate_limit_rps: float = Field(
+        0.0, ge=0, description="Requests per second per client (API key or address); 0: off."
+    )
+    rate_limit_burst: int = Field(
+        0, ge=0, description="Requests a client may send at once; 0: twice rate_limit_rps."
+    )
+    rate_limit_storage: str = Field(
+        "memory://", description="Where rate counters live (a limits storage URI)."
+    )
+    rate_limit_client_header: str | None = Field(
+        None, description="Header a trusted proxy sets with the client address (last entry)."
+    )
+
     api_keys_file: Path | None = Field(
         None, description="TOML file of API key hashes of private cubes (<cube>.<key id> = hash)."
     )
@@ -141,6 +155,11 @@ class Settings(BaseSettings):
             max_cells=self.max_cells,
             max_read_bytes=self.max_read_bytes,
         )
+
+    @property
+    def burst(self) -> int:
+        """The rate limit's burst (explicit, or twice the rate)."""
+        return self.rate_limit_burst or max(math.ceil(2 * self.rate_limit_rps), 1)
 
     def key_ring(self) -> KeyRing:
         """The private cubes and the keys that may read them (cube list and keys file)."""
