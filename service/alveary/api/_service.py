@@ -48,10 +48,9 @@ log = logging.getLogger("alveary.api")
 
 # Answers with at most this many (zone, time) rows are encoded on the event loop; larger
 # ones in a worker thread so that one big answer does not stall small ones; answers over
-# _STREAM_ROWS are sent block by block as they are encoded (chunked transfer), never
+# the setting stream_rows are sent block by block as they are encoded (chunked transfer), never
 # held whole, and not kept in the answer cache.
 _INLINE_ROWS = 2_000
-_STREAM_ROWS = 100_000
 # Requests under this many cells never wait at the gate.
 _SMALL_CELLS = 20_000
 # Seconds /readyz may take; past it the answer is "not ready".
@@ -152,7 +151,7 @@ class Service:
                 self.note_fault(cube_id, exc)
                 raise
             rows = result.rows if isinstance(result, ZoneResult) else 0
-            if rows > _STREAM_ROWS:
+            if rows > self.settings.stream_rows:
                 blocks, media = encode_blocks(result, fmt, geometry=geometry)
                 # The first block is made before the status line goes out, so an error
                 # there is still an error response.

@@ -96,6 +96,11 @@ class Settings(BaseSettings):
         "process; more wait up to queue_wait seconds, then get 503.",
     )
     queue_wait: float = Field(2.0, ge=0, description="Seconds a large request may queue.")
+    stream_rows: int = Field(
+        100_000,
+        ge=1,
+        description="Answers over this many (zone, time) rows are streamed as they are encoded.",
+    )
     header_timeout: float = Field(
         10.0, gt=0, description="Seconds a client may take to send a request's headers."
     )

@@ -47,6 +47,7 @@ _OPTIONS: tuple[tuple[str, str, type, str], ...] = (
     ("--max-body-bytes", "max_body_bytes", int, "limit: request body size, bytes"),
     ("--max-cells-in-flight", "max_cells_in_flight", int, "cells of large answers in flight"),
     ("--queue-wait", "queue_wait", float, "seconds a large request may wait for room"),
+    ("--stream-rows", "stream_rows", int, "answers over this many rows are streamed"),
     ("--header-timeout", "header_timeout", float, "seconds a client may take to send headers"),
     ("--keep-alive-timeout", "keep_alive_timeout", float, "idle keep-alive, seconds"),
     ("--max-connections", "max_connections", int, "open connections per worker (more: 503)"),
