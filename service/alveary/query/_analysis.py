@@ -21,7 +21,7 @@ elsewhere) can take the same three:
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -183,6 +183,8 @@ class AnalysedValues:
 
 
 _DIRECTION = "gradient_direction"
+# Statistics that pick one of the values (so they keep the stored type for printing).
+_PICKS = ("min", "max", "first", "last")
 
 
 def _focal_variable(
@@ -197,7 +199,10 @@ def _focal_variable(
         units = f"{info.units} m-1" if info.units and info.units != "1" else "m-1"
         return ResultVariable(name, units, f"gradient of {info.name} (plane fit {disk})")
     label = "ring-weighted mean" if output == "kernel" else output
-    return ResultVariable(name, info.units, f"{info.long_name or info.name}, {label} {disk}")
+    long_name = f"{info.long_name or info.name}, {label} {disk}"
+    if output in _PICKS:  # one of the stored values: printed as stored
+        return replace(info, name=name, long_name=long_name)
+    return ResultVariable(name, info.units, long_name)
 
 
 def _time_variable(info: ResultVariable, agg: TimeAggregation) -> ResultVariable:
@@ -210,6 +215,8 @@ def _time_variable(info: ResultVariable, agg: TimeAggregation) -> ResultVariable
         if agg.agg == "count":
             return ResultVariable(info.name, "1", f"steps with data of {info.name} per {agg.every}")
         long_name = f"{long_name}, {agg.agg} per {agg.every}"
+        if agg.anomaly is None and agg.agg in _PICKS:  # stored values: printed as stored
+            return replace(info, long_name=long_name)
     return ResultVariable(info.name, info.units, long_name)
 
 
