@@ -19,7 +19,8 @@ import pandas as pd
 import pyarrow as pa
 import pytest
 
-from alveary import grid
+from alveary import InvalidInput, grid
+from alveary.client import Client
 from support.analytic import START, field, rain
 from support.server import ServiceProcess
 
@@ -257,3 +258,18 @@ def test_limits_count_the_halo_before_any_read(http, s3_server, analytic_store):
     chunk_gets = [q for q in s3_server.requests(since=mark, bucket=url) if "/c/" in q.path]
     assert chunk_gets == []
     assert http.get("/cubes/analytic/bbox", params=box).status_code == 200  # plain box fits
+
+
+def test_client_passes_the_analysis_parameters(svc, http):
+    analysis = {"kernel": [1.0, 0.5], "every": "P7D", "agg": "max"}
+    raw = get(
+        http, "bbox", vars="temp", datetime="../..", kernel="1.0,0.5", every="P7D", agg="max", **BOX
+    ).json()
+    with Client(svc.url) as c:
+        body = c.bbox(
+            "analytic", BOX["bbox"], level=7, vars="temp", datetime="../..", analysis=analysis
+        )
+        assert body == raw
+        with pytest.raises(InvalidInput) as err:
+            c.point("analytic", 45.0, 7.5, analysis={"smooth": "yes"})
+        assert err.value.parameter == "analysis"
