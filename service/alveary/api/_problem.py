@@ -1,9 +1,11 @@
 """Errors as application/problem+json (RFC 9457), with status and title from the one table
 (:data:`alveary._errors.HTTP_STATUS`).
 
-Every error a client sees is a problem document with ``type``, ``title``, ``status`` and
-``detail``; input errors also name the ``parameter``, the offending ``value`` and what is
-``allowed``; limit errors name the ``limit``, the ``requested`` amount and the ``maximum``.
+Every error a client sees is a problem document with ``type``, ``title``, ``status``,
+``detail`` and the ``request_id`` of the request (also its ``X-Request-Id`` header);
+input errors also name the ``parameter``, the offending ``value`` and what is
+``allowed``; limit errors name the ``limit``, the ``requested`` amount and the
+``maximum``.
 Nothing else is passed on: no stack trace, no internal path, no store URL or credential.
 """
 
@@ -32,6 +34,7 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
+from alveary.api._requestlog import REQUEST_ID
 
 __all__ = ["PROBLEM", "domain_response", "install_handlers", "problem_response"]
 
@@ -64,6 +67,9 @@ def problem_response(
         "detail": detail,
     }
     body.update({k: _jsonable(v) for k, v in members.items() if v is not None})
+    request_id = REQUEST_ID.get()
+    if request_id is not None:
+        body["request_id"] = request_id
     content = orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS)
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 
@@ -113,7 +119,7 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
             retry_after=exc.retry_after,
         )
     # Store and decode errors may carry URLs or paths: the client only gets the title.
-    log.warning("%s: %s", type(exc).__name__, exc)
+    log.warning("%s: %s (request %s)", type(exc).__name__, exc, REQUEST_ID.get())
     detail = next((d for cls, d in _PUBLIC_DETAIL if isinstance(exc, cls)), "Internal error.")
     return problem_response(status, title, detail, headers=headers)
 
@@ -179,5 +185,5 @@ def install_handlers(app: FastAPI, retry_after: int) -> None:
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception) -> Response:
-        log.exception("unhandled error on %s", request.url.path)
+        log.exception("unhandled error on %s (request %s)", request.url.path, REQUEST_ID.get())
         return problem_response(500, "Internal error", "An unexpected error occurred.")

@@ -118,6 +118,7 @@ def serve(overrides: dict[str, Any]) -> int:
         host=settings.host,
         port=settings.port,
         log_level=settings.log_level,
+        access_log=not settings.access_log,  # the service writes its own JSON request log
         proxy_headers=False,
     )
     return 0
