@@ -119,7 +119,7 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
             retry_after=exc.retry_after,
         )
     # Store and decode errors may carry URLs or paths: the client only gets the title.
-    log.warning("%s: %s (request %s)", type(exc).__name__, exc, REQUEST_ID.get())
+    log.warning("%s: %s", type(exc).__name__, exc)
     detail = next((d for cls, d in _PUBLIC_DETAIL if isinstance(exc, cls)), "Internal error.")
     return problem_response(status, title, detail, headers=headers)
 
@@ -185,5 +185,5 @@ def install_handlers(app: FastAPI, retry_after: int) -> None:
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception) -> Response:
-        log.exception("unhandled error on %s (request %s)", request.url.path, REQUEST_ID.get())
+        log.exception("unhandled error on %s", request.url.path)
         return problem_response(500, "Internal error", "An unexpected error occurred.")
