@@ -50,15 +50,15 @@ class RequestIdFilter(logging.Filter):
 
 
 def access_logger() -> logging.Logger:
-    """The ``alveary.access`` logger, writing bare JSON lines to standard error."""
+    """The ``alveary.access`` logger; unless logging was configured for it already
+    (``alveary serve`` does), bare JSON lines to standard error."""
     logger = logging.getLogger("alveary.access")
-    if not any(getattr(h, "_alveary_access", False) for h in logger.handlers):
+    if not logger.handlers:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
-        handler._alveary_access = True  # type: ignore[attr-defined]
         logger.addHandler(handler)
-    logger.setLevel(logging.INFO)
-    logger.propagate = False
+        logger.setLevel(logging.INFO)
+        logger.propagate = False
     return logger
 
 

@@ -91,6 +91,19 @@ def log_config(level: str) -> dict[str, Any]:
         "class": "logging.StreamHandler",
         "stream": "ext://sys.stderr",
     }
+    # The request log: bare JSON lines (alveary.api's RequestLogMiddleware), whatever
+    # the level of the rest; off with ALVEARY_ACCESS_LOG=false.
+    config["formatters"]["alveary_access"] = {"format": "%(message)s"}
+    config["handlers"]["alveary_access"] = {
+        "formatter": "alveary_access",
+        "class": "logging.StreamHandler",
+        "stream": "ext://sys.stderr",
+    }
+    config["loggers"]["alveary.access"] = {
+        "handlers": ["alveary_access"],
+        "level": "INFO",
+        "propagate": False,
+    }
     config["loggers"]["alveary"] = {
         "handlers": ["alveary"],
         "level": level.upper() if level.upper() != "TRACE" else "DEBUG",
