@@ -12,8 +12,9 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from alveary._errors import LimitExceeded
 from alveary.api._answers import AnswerFrontMiddleware
+from alveary.api._head import HeadMiddleware
 from alveary.api._metrics import MetricsMiddleware
-from alveary.api._openapi import DESCRIPTION, install_openapi
+from alveary.api._openapi import DESCRIPTION, install_docs, install_openapi
 from alveary.api._problem import domain_response, install_handlers
 from alveary.api._routes_cubes import router as cubes_router
 from alveary.api._routes_meta import router as meta_router
@@ -106,7 +107,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
         title="alveary",
         description=DESCRIPTION,
         lifespan=lifespan,
-        docs_url="/docs",
+        docs_url=None,  # served from the package's own assets (install_docs)
         redoc_url=None,
     )
     app.state.service = service
@@ -115,6 +116,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.include_router(cubes_router)
     app.include_router(zones_router)
     install_openapi(app)
+    install_docs(app)
     _add_middleware(app, service, settings)
     return app
 
@@ -137,6 +139,7 @@ def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
             max_age=600,
         )
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(HeadMiddleware)
     app.add_middleware(MetricsMiddleware, metrics=service.metrics)
 
 

@@ -100,9 +100,12 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
             limit=exc.limit,
             requested=exc.requested,
             maximum=exc.maximum,
+            finest_level=exc.finest_level,
         )
     if isinstance(exc, NotFound):
-        return problem_response(status, title, exc.message, kind=exc.kind, name=str(exc.name))
+        return problem_response(
+            status, title, exc.message, kind=exc.kind, name=str(exc.name), **exc.members
+        )
     # Store and decode errors may carry URLs or paths: the client only gets the title.
     log.warning("%s: %s", type(exc).__name__, exc)
     detail = next((d for cls, d in _PUBLIC_DETAIL if isinstance(exc, cls)), "Internal error.")

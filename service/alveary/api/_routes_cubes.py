@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 import orjson
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Depends, Request
 from starlette.responses import Response
 
 from alveary._errors import InvalidInput, LimitExceeded
@@ -43,6 +43,7 @@ from alveary.api.deps import (
     StatsDep,
     VarsParam,
     ZoneParam,
+    known_parameters,
     make_selection,
 )
 from alveary.query import (
@@ -61,7 +62,7 @@ from alveary.query import (
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["cubes"])
+router = APIRouter(tags=["cubes"], dependencies=[Depends(known_parameters())])
 
 _OTHER_FORMATS: dict[int | str, dict[str, Any]] = {
     200: {
@@ -319,9 +320,24 @@ async def query_polygon(
 ) -> Response:
     body = await _json_body(request)
     area = parse_polygon(body, service.limits.max_polygon_vertices)
-    query = PolygonQuery(area, stats, sel)
-    geometry = area.geometry if stats and fmt == "geojson" else None
+    props = _feature_properties(body)
+    text = orjson.dumps(props, option=orjson.OPT_SORT_KEYS).decode() if props else ""
+    query = PolygonQuery(area, stats, sel, properties=text)
+    geometry: dict[str, Any] | None = None
+    if stats and fmt == "geojson":
+        # The polygon as read (RFC 7946: exterior rings counter-clockwise, cut at the
+        # antimeridian), as a Feature keeping the posted Feature's properties.
+        geometry = {"type": "Feature", "geometry": area.geometry, "properties": props or {}}
     return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+
+
+def _feature_properties(body: Any) -> dict[str, Any] | None:
+    """A posted Feature's properties (None for a bare geometry or null properties)."""
+    if isinstance(body, dict) and body.get("type") == "Feature":
+        props = body.get("properties")
+        if isinstance(props, dict) and props:
+            return props
+    return None
 
 
 @router.post(
