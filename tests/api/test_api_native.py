@@ -416,3 +416,30 @@ def test_docs_page_loads_only_same_origin_assets(client):
     assert "http://" not in page.text and "https://" not in page.text
     assert client.get("/docs/assets/LICENSE.txt").status_code == 200
     assert client.get("/docs/assets/..%2F..%2F_app.py").status_code == 404
+
+
+@pytest.mark.parametrize(
+    ("query", "parameter"),
+    [
+        ("lat=91&lon=-36.1", "lat"),
+        ("lat=x&lon=-36.1", "lat"),
+        ("lat=30.55", "lon"),
+        ("lat=30.55&lon=-36.1&level=99", "level"),
+        ("lat=30.55&lon=-36.1&f=png", "f"),
+    ],
+)
+def test_point_errors_are_the_documented_ones(client, query, parameter):
+    # A request the fast point path does not take goes to the route: the same 422.
+    body = problem(client.get(f"/cubes/district/point?{query}"), 422)
+    assert body["parameter"] == parameter
+
+
+def test_point_answer_matches_the_written_value(client):
+    lat, lon = 30.41, -36.33
+    doc = client.get("/cubes/district/point", params={"lat": lat, "lon": lon}).json()
+    zone = int(grid.point_to_zone(lat, lon, 12))
+    zlat, _ = grid.zone_to_point(np.uint64(zone))
+    assert doc["zones"][0]["zone"] == zone and doc["kind"] == "point"
+    # What _write_district wrote for that zone at the latest step (float32 storage).
+    expected = np.float32(0.2 + 0.001 * (float(zlat) - 30.0) + 0.0002)
+    assert doc["zones"][0]["values"]["moisture"][0] == pytest.approx(float(expected), rel=1e-6)

@@ -296,12 +296,14 @@ def fresh_points(svc: ServiceProcess, seconds: float = 6.0) -> None:
     lon = west + 0.5 + (east - west - 1.0) * rng.random(n)
     points = [f"/cubes/bench/point?lat={a:.6f}&lon={b:.6f}" for a, b in zip(lat, lon, strict=True)]
     # Warm the chunks of the latest step everywhere (one bbox read per level) and the code.
+    middle = (west + east) / 2
     for level in LEVELS:
-        httpx.get(
-            f"{svc.url}/cubes/bench/bbox",
-            params={"bbox": ",".join(map(str, REGION)), "level": level, "f": "arrow"},
-            timeout=300,
-        ).raise_for_status()
+        for box in ((west, south, middle, north), (middle, south, east, north)):
+            httpx.get(
+                f"{svc.url}/cubes/bench/bbox",
+                params={"bbox": ",".join(map(str, box)), "level": level, "f": "arrow"},
+                timeout=300,
+            ).raise_for_status()
     asyncio.run(_load(host, int(port), points[-5000:], 1.5, 8))
     rows = []
     for conns in (8, 1):

@@ -16,6 +16,7 @@ from alveary.api._head import HeadMiddleware
 from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_docs, install_openapi
 from alveary.api._problem import domain_response, install_handlers
+from alveary.api._routes_cubes import install_point_lane
 from alveary.api._routes_cubes import router as cubes_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
@@ -113,6 +114,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.state.service = service
     install_handlers(app, settings.retry_after)
     app.include_router(meta_router)
+    install_point_lane(app)
     app.include_router(cubes_router)
     app.include_router(zones_router)
     install_openapi(app)
