@@ -28,6 +28,7 @@ from alveary.api.deps import (
     CUBE_FORMATS,
     AcceptHeader,
     BboxParam,
+    CredentialsDep,
     CubeId,
     DatetimeParam,
     FormatDep,
@@ -138,8 +139,9 @@ def _cube_meta(
     summary="List the cubes this server publishes",
     response_model=CubeList,
 )
-async def list_cubes(service: ServiceDep) -> Response:
-    out = [_cube_meta(s.id, s.title, cube, full=False) for s, cube in service.catalog.cubes()]
+async def list_cubes(service: ServiceDep, credentials: CredentialsDep) -> Response:
+    readable = service.cubes_for(credentials)
+    out = [_cube_meta(s.id, s.title, cube, full=False) for s, cube in readable]
     return _json({"cubes": out})
 
 
@@ -149,9 +151,9 @@ async def list_cubes(service: ServiceDep) -> Response:
     summary="One cube: variables, units, levels, time axis, coverage and version",
     response_model=CubeMeta,
 )
-async def get_cube(service: ServiceDep, cube: CubeId) -> Response:
-    source = service.catalog.source(cube)
-    obj = service.catalog.get(cube)
+async def get_cube(service: ServiceDep, credentials: CredentialsDep, cube: CubeId) -> Response:
+    source = service.source_for(cube, credentials)
+    obj = service.cube_for(cube, credentials)
     return _json(_cube_meta(cube, source.title, obj, full=True))
 
 
@@ -183,7 +185,9 @@ async def query_point(
     sel = make_selection(level, vars_, time)
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    credentials = await service.credentials(request.scope)
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 @router.get(
@@ -201,6 +205,7 @@ async def query_point(
 async def query_disk(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     k: KParam,
     sel: SelectionDep,
@@ -212,7 +217,8 @@ async def query_disk(
 ) -> Response:
     zone_id = parse_zone(zone, "zone") if zone is not None else None
     query = DiskQuery(k=k, lat=lat, lon=lon, zone=zone_id, selection=sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 @router.get(
@@ -230,6 +236,7 @@ async def query_disk(
 async def query_radius(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     lat: LatParam,
     lon: LonParam,
@@ -240,7 +247,8 @@ async def query_radius(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     query = RadiusQuery(lat, lon, meters, nearest, sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 _AREA_DOC = (
@@ -262,6 +270,7 @@ _AREA_DOC = (
 async def query_bbox(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     bbox: BboxParam,
     sel: SelectionDep,
@@ -275,7 +284,9 @@ async def query_bbox(
     if stats and fmt == "geojson":
         geometry = _bbox_geometry(west, south, east, north)
     key = request_key(request.scope)
-    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry, key=key)
+    return await service.answer(
+        cube, query, fmt, if_none_match, credentials=credentials, geometry=geometry, key=key
+    )
 
 
 def _bbox_geometry(west: float, south: float, east: float, north: float) -> dict[str, Any]:
@@ -316,6 +327,7 @@ async def _json_body(request: Request) -> Any:
 async def query_polygon(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     sel: SelectionDep,
     fmt: FormatDep,
@@ -332,7 +344,9 @@ async def query_polygon(
         # The polygon as read (RFC 7946: exterior rings counter-clockwise, cut at the
         # antimeridian), as a Feature keeping the posted Feature's properties.
         geometry = {"type": "Feature", "geometry": area.geometry, "properties": props or {}}
-    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+    return await service.answer(
+        cube, query, fmt, if_none_match, credentials=credentials, geometry=geometry
+    )
 
 
 def _feature_properties(body: Any) -> dict[str, Any] | None:
@@ -367,6 +381,7 @@ def _feature_properties(body: Any) -> dict[str, Any] | None:
 async def query_points(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     sel: SelectionDep,
     fmt: FormatDep,
@@ -386,7 +401,7 @@ async def query_points(
     if not lat:
         raise InvalidInput("lat", "[]", "at least one point")
     query = PointsQuery(np.asarray(lat, dtype=float), np.asarray(lon, dtype=float), sel)
-    return await service.answer(cube, query, fmt, if_none_match)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials)
 
 
 def _keys(body: Any) -> str:
@@ -486,8 +501,14 @@ class PointLane:
         fmt = negotiate(args["f"], _header(scope, b"accept"), CUBE_FORMATS)
         query = PointQuery(args["lat"], args["lon"], sel)
         cube = scope["path_params"]["cube"]
+        credentials = await service.credentials(scope)
         response = await service.answer(
-            cube, query, fmt, _header(scope, b"if-none-match"), key=request_key(scope)
+            cube,
+            query,
+            fmt,
+            _header(scope, b"if-none-match"),
+            credentials=credentials,
+            key=request_key(scope),
         )
         await response(scope, receive, send)
 
