@@ -38,7 +38,10 @@ async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarra
             raise as_domain_error(exc, f"chunks of {var!r}") from exc
         return np.asarray(out, dtype=np.float64).reshape(steps, n)
 
-    arrays = await asyncio.gather(*(one(v) for v in r.variables))
+    if len(r.variables) == 1:  # nothing to overlap: no task to create and schedule
+        arrays = [await one(r.variables[0])]
+    else:
+        arrays = list(await asyncio.gather(*(one(v) for v in r.variables)))
     return dict(zip(r.variables, arrays, strict=True))
 
 
