@@ -3,17 +3,17 @@
 from __future__ import annotations
 
 import orjson
-from fastapi import APIRouter
+from fastapi import APIRouter, Depends
 from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import CredentialsDep, ServiceDep
+from alveary.api.deps import CredentialsDep, ServiceDep, known_parameters
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["service"])
+router = APIRouter(tags=["service"], dependencies=[Depends(known_parameters())])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
 _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
