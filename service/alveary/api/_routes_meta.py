@@ -9,6 +9,7 @@ from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
+from alveary.api._edr_docs import landing_page
 from alveary.api._schemas import Landing, Ready
 from alveary.api.deps import ServiceDep
 
@@ -17,28 +18,31 @@ __all__ = ["router"]
 router = APIRouter(tags=["service"])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
+_DESCRIPTION = "Spatial and time queries over hexagonal, equal-area data cubes"
+_CUBES_LINK = {
+    "href": "/cubes",
+    "rel": "data",
+    "type": "application/json",
+    "title": "Cubes (the native API)",
+}
 _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 
 
 @router.get(
-    "/", operation_id="landing", summary="Landing page: links and version", response_model=Landing
+    "/",
+    operation_id="landing",
+    summary="Landing page: links to the API definition, conformance, collections and cubes",
+    response_model=Landing,
 )
 async def landing(service: ServiceDep) -> Response:
-    body = {
-        "title": "alveary",
-        "description": "Spatial and time queries over hexagonal, equal-area data cubes.",
-        "version": __version__,
-        "links": [
-            {"href": "/", "rel": "self", "type": "application/json"},
-            {"href": "/cubes", "rel": "data", "type": "application/json", "title": "Cubes"},
-            {
-                "href": "/openapi.json",
-                "rel": "service-desc",
-                "type": "application/vnd.oai.openapi+json;version=3.1",
-            },
-            {"href": "/docs", "rel": "service-doc", "type": "text/html"},
-        ],
-    }
+    # One landing page for both APIs: OGC API - EDR's links (service-desc, service-doc,
+    # conformance, data -> /collections) and the native /cubes. EDR's landing-page schema
+    # has no member for a version, so it is part of the description.
+    body = landing_page(
+        title="alveary",
+        description=f"{_DESCRIPTION} (alveary {__version__}).",
+        extra_links=[_CUBES_LINK],
+    )
     return Response(orjson.dumps(body), media_type="application/json")
 
 

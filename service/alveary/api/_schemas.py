@@ -32,8 +32,7 @@ class Link(BaseModel):
 
 class Landing(BaseModel):
     title: str
-    description: str
-    version: str
+    description: str = Field(description="What the service offers, and its version.")
     links: list[Link]
 
 

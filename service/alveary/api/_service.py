@@ -2,7 +2,9 @@
 
 :class:`Service` holds the catalogue, the chunk cache, the limits and the metrics; its
 :meth:`Service.answer` is the path every cube query takes: resolve (no I/O) -> ETag ->
-304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode. The
+native API encodes with :func:`alveary.api._encode.encode`; another surface (OGC API -
+EDR) passes its own :data:`Encoder`, and takes the same path otherwise.
 """
 
 from __future__ import annotations
@@ -10,6 +12,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import logging
+from collections.abc import Callable
 from typing import Any
 
 import anyio.to_thread
@@ -25,6 +28,8 @@ from alveary.cube import ChunkCache
 from alveary.query import (
     BboxQuery,
     Catalog,
+    CubeSnapshot,
+    CubeSource,
     Plan,
     PointQuery,
     PolygonQuery,
@@ -37,13 +42,17 @@ from alveary.query import (
     resolve,
 )
 
-__all__ = ["Service"]
+__all__ = ["Encoder", "Service"]
 
 log = logging.getLogger("alveary.api")
 
 # Answers with at most this many (zone, time) rows are encoded on the event loop; larger
 # ones in a worker thread so that one big answer does not stall small ones.
 _INLINE_ROWS = 2_000
+
+#: An answer's encoder: (result, the resolved query) -> (body, media type), or None when
+#: the answer is to be "204 No Content" (no body, nothing cached).
+Encoder = Callable[[ZoneResult | StatsResult, Resolved], tuple[bytes, str] | None]
 
 
 class Service:
@@ -97,6 +106,18 @@ class Service:
         except AlvearyError:  # unknown, or not reachable yet
             return None
 
+    def served(self, cube_id: str) -> tuple[CubeSource, CubeSnapshot]:
+        """One cube's configuration and the version it serves now.
+
+        Raises NotFound (unknown cube) or StoreUnavailable (not reachable yet).
+        """
+        source = self.catalog.source(cube_id)
+        return source, self.catalog.get(cube_id).snapshot()
+
+    def served_all(self) -> list[tuple[CubeSource, CubeSnapshot]]:
+        """Every cube that can be reached now, with the version it serves."""
+        return [(s, cube.snapshot()) for s, cube in self.catalog.cubes() if cube is not None]
+
     async def answer(
         self,
         cube_id: str,
@@ -106,10 +127,16 @@ class Service:
         *,
         geometry: dict[str, Any] | None = None,
         key: str | None = None,
+        encoder: Encoder | None = None,
+        operation: str | None = None,
     ) -> Response:
         """Run one cube query end to end and build the HTTP response.
 
-        ``key`` is the raw request's cache key (GET requests), for the answer front.
+        ``fmt`` names the encoding (part of the ETag). ``key`` is the raw request's cache
+        key (GET requests), for the answer front. ``encoder`` replaces the native
+        encoders (``fmt`` must then name what it writes); when it returns None the
+        answer is 204 with no body. ``operation`` names the operation in the metrics of
+        answers served from the cache (default ``query_<op>``).
         """
         resolved = resolve(self.catalog, cube_id, query)
         etag = etag_for(resolved.key, fmt)
@@ -124,10 +151,16 @@ class Service:
             return Response(cached.body, media_type=cached.media_type, headers=headers)
         plan = await self._plan(resolved)
         result = await execute(plan, self.cache, deadline=self.settings.deadline)
-        body, media = await self._encode(result, fmt, geometry)
+        if encoder is None:
+            body, media = await self._encode(result, fmt, geometry)
+        else:
+            written = await self._custom(encoder, result, resolved)
+            if written is None:
+                return Response(status_code=204, headers=headers)
+            body, media = written
         if caching:
-            operation = f"query_{query.op}"
-            answer = Answer(cube_id, resolved.version, etag, body, media, operation)
+            name = operation or f"query_{query.op}"
+            answer = Answer(cube_id, resolved.version, etag, body, media, name)
             self.answers.put_answer(answer, key)
         return Response(body, media_type=media, headers=headers)
 
@@ -153,6 +186,14 @@ class Service:
         if rows <= _INLINE_ROWS:
             return encode(result, fmt, geometry=geometry)
         return await anyio.to_thread.run_sync(lambda: encode(result, fmt, geometry=geometry))
+
+    async def _custom(
+        self, encoder: Encoder, result: ZoneResult | StatsResult, resolved: Resolved
+    ) -> tuple[bytes, str] | None:
+        rows = result.rows if isinstance(result, ZoneResult) else 0
+        if rows <= _INLINE_ROWS:
+            return encoder(result, resolved)
+        return await anyio.to_thread.run_sync(encoder, result, resolved)
 
     def ready(self) -> dict[str, str | None]:
         """Check every store now (blocking: run off the loop); id -> None or error name."""
