@@ -275,7 +275,19 @@ _QUERY_RESPONSES: dict[int | str, dict[str, Any]] = {
 }
 
 
-def _body_schema(coords: str, example: str) -> dict[str, Any]:
+def _body_schema(coords: str, stats: bool = False) -> dict[str, Any]:
+    properties: dict[str, Any] = {
+        "coords": {"type": "string", "description": coords},
+        "datetime": {"type": "string"},
+        "parameter-name": {"type": "array", "items": {"type": "string"}},
+        "parameter_names": {"type": "array", "items": {"type": "string"}},
+        "crs": {"type": "string"},
+        "z": {"type": "string", "description": "Not supported (400): surface fields."},
+        "f": {"type": "string", "enum": list(OUTPUT_FORMATS)},
+        "level": {"type": "integer", "minimum": 0, "maximum": MAX_LEVEL},
+    }
+    if stats:
+        properties["stats"] = {"type": "string"}
     return {
         "requestBody": {
             "required": True,
@@ -285,17 +297,8 @@ def _body_schema(coords: str, example: str) -> dict[str, Any]:
                         "type": "object",
                         "required": ["coords"],
                         "additionalProperties": False,
-                        "properties": {
-                            "coords": {"type": "string", "description": coords},
-                            "datetime": {"type": "string"},
-                            "parameter-name": {"type": "array", "items": {"type": "string"}},
-                            "crs": {"type": "string"},
-                            "f": {"type": "string", "enum": list(OUTPUT_FORMATS)},
-                            "level": {"type": "integer", "minimum": 0, "maximum": MAX_LEVEL},
-                            "stats": {"type": "string"},
-                        },
-                    },
-                    "example": {"coords": example},
+                        "properties": properties,
+                    }
                 }
             },
         }
@@ -687,7 +690,7 @@ def _common_of(body: dict[str, Any], f: str | None) -> _Common:
     operation_id="edr_position_post",
     summary=_POSITION + " (parameters in a JSON body)",
     responses=_QUERY_RESPONSES,
-    openapi_extra=_body_schema("WKT POINT or MULTIPOINT", "POINT(7.6 45.2)"),
+    openapi_extra=_body_schema("WKT POINT or MULTIPOINT"),
 )
 async def position_post(
     request: Request,
@@ -707,9 +710,7 @@ async def position_post(
     operation_id="edr_area_post",
     summary=_AREA + " (parameters in a JSON body, for long polygons)",
     responses=_QUERY_RESPONSES,
-    openapi_extra=_body_schema(
-        "WKT POLYGON or MULTIPOLYGON", "POLYGON((7 45, 7.5 45, 7.5 45.4, 7 45.4, 7 45))"
-    ),
+    openapi_extra=_body_schema("WKT POLYGON or MULTIPOLYGON", stats=True),
 )
 async def area_post(
     request: Request,

@@ -9,6 +9,7 @@ from pydantic import BaseModel, ConfigDict, Field
 __all__ = [
     "CubeList",
     "CubeMeta",
+    "EdrProblem",
     "Landing",
     "PointsBody",
     "Problem",
@@ -141,6 +142,14 @@ class Problem(_Open):
     limit: str | None = None
     requested: float | None = None
     maximum: float | None = None
+
+
+class EdrProblem(Problem):
+    """An error on an OGC API - EDR path: the EDR exception (``code``, ``description``)
+    and the problem+json members in one document."""
+
+    code: str = Field(description="EDR exception code, e.g. InvalidParameterValue.")
+    description: str = Field(description="What went wrong (the same text as detail).")
 
 
 class Ready(BaseModel):
