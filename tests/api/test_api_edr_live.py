@@ -20,6 +20,7 @@ import io
 
 import httpx
 import numpy as np
+import openapi_spec_validator
 import orjson
 import pyarrow as pa
 import pytest
@@ -81,18 +82,21 @@ def composite(doc):
 # --- documents ------------------------------------------------------------------------
 
 
-def test_landing_page(http, edr):
+def test_landing_page(http, edr, service):
     r = http.get("/")
     LandingPageModel.model_validate_json(r.content)  # edr-pydantic: no extra members
     rels = {}
     for link in r.json()["links"]:
-        rels.setdefault(link["rel"], []).append(link["href"])
+        rels.setdefault(link["rel"], []).append(link["href"].removeprefix(service.url))
+    # Links are absolute, built from the request's base URL.
+    assert all(link["href"].startswith(service.url + "/") for link in r.json()["links"])
     # OGC 19-086r6 /req/core/root-success: service-desc/-doc, conformance, data.
-    assert rels["service-desc"] == ["/openapi.json"] and rels["service-doc"] == ["/docs"]
+    assert rels["service-desc"] == ["/openapi.json", "/openapi-3.0.json"]
+    assert rels["service-doc"] == ["/docs"]
     assert rels["conformance"] == ["/conformance"]
     assert rels["data"][0] == "/collections" and "/cubes" in rels["data"]
     assert {link["rel"] for link in edr.links} == set(rels)  # what OWSLib read
-    for href in ("/openapi.json", "/docs", "/conformance", "/collections", "/cubes"):
+    for href in ("/openapi.json", "/openapi-3.0.json", "/docs", "/conformance", "/cubes"):
         assert http.get(href).status_code == 200, href
 
 
@@ -447,8 +451,15 @@ def test_limits_are_the_native_limits(http):
     assert r.status_code == 413 and r.json()["code"] == "LimitExceeded"
 
 
-def test_openapi_lists_the_edr_operations(http):
-    paths = http.get("/openapi.json").json()["paths"]
+def test_openapi_lists_the_edr_operations(http, edr):
+    document = http.get("/openapi.json").json()
+    openapi_spec_validator.validate(document)  # OpenAPI 3.1 schema
+    # OWSLib's api() follows the service-desc link of type OpenAPI 3.0 and reads it.
+    older = edr.api()
+    assert older["openapi"].startswith("3.0.")
+    openapi_spec_validator.validate(older)  # valid OpenAPI 3.0 (openapi-spec-validator)
+    assert older["paths"].keys() == document["paths"].keys()
+    paths = document["paths"]
     for query in ("position", "radius", "area", "cube"):
         assert "get" in paths[f"/collections/{{cube}}/{query}"]
     assert "post" in paths["/collections/{cube}/position"]

@@ -4,7 +4,8 @@ against the native point query's, for the same place and the same time steps.
 A cube (levels 7 and 9, 30 daily steps over a 20° x 20° region) is written to the
 S3-protocol test server (moto_server on 127.0.0.1) and served by a real ``alveary
 serve`` process. wrk (2 threads, 32 connections, loopback) measures, in alternation so
-that drift of the machine falls on both alike:
+that drift of the machine falls on both alike (five rounds of 3 s each; the ratio is
+the median of the rounds' ratios, with their range):
 
 - the latest step at a point: native ``/point`` against EDR ``position`` with the last
   step's instant as ``datetime``;
@@ -63,7 +64,7 @@ def build(url: str, options: dict) -> float:
     return time.perf_counter() - t0
 
 
-def wrk_rate(url: str, seconds: int = 6) -> tuple[float, int]:
+def wrk_rate(url: str, seconds: int = 3) -> tuple[float, int]:
     args = ["wrk", "-t2", "-c32", f"-d{seconds}s", url]
     out = subprocess.run(args, capture_output=True, text=True, check=True).stdout
     rps = float(re.search(r"Requests/sec:\s+([\d.]+)", out).group(1))
@@ -82,9 +83,9 @@ def pairs(base: str) -> list[tuple[str, str, str]]:
     ]
 
 
-def compare(svc: ServiceProcess, label: str, rounds: int = 2) -> list[float]:
+def compare(svc: ServiceProcess, label: str, rounds: int = 5) -> list[float]:
     print(f"\n### {label}")
-    print(f"{'answer':<18}{'native req/s':>14}{'EDR req/s':>12}{'EDR/native':>12}")
+    print(f"{'answer':<18}{'native req/s':>14}{'EDR req/s':>12}{'EDR/native':>12}{'range':>14}")
     ratios = []
     for name, native, edr in pairs(svc.url):
         a, b = httpx.get(native), httpx.get(edr)
@@ -94,15 +95,19 @@ def compare(svc: ServiceProcess, label: str, rounds: int = 2) -> list[float]:
         wrk_rate(native, 1)
         wrk_rate(edr, 1)  # warm-up
         rates: dict[str, list[float]] = {"native": [], "edr": []}
-        for _ in range(rounds):  # alternate: drift falls on both alike
+        per_round = []
+        for _ in range(rounds):  # alternate: drift of the machine falls on both alike
             for key, url in (("native", native), ("edr", edr)):
                 rps, bad = wrk_rate(url)
                 if bad:
                     raise RuntimeError(f"{bad} non-2xx answers from {url}")
                 rates[key].append(rps)
+            per_round.append(rates["edr"][-1] / rates["native"][-1])
         n, e = statistics.median(rates["native"]), statistics.median(rates["edr"])
-        ratios.append(e / n)
-        print(f"{name:<18}{n:>14.0f}{e:>12.0f}{e / n:>12.2f}")
+        ratio = statistics.median(per_round)
+        ratios.append(ratio)
+        spread = f"{min(per_round):.2f}-{max(per_round):.2f}"
+        print(f"{name:<18}{n:>14.0f}{e:>12.0f}{ratio:>12.2f}{spread:>14}")
     return ratios
 
 

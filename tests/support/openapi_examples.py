@@ -19,10 +19,23 @@ from typing import Any
 
 import httpx
 
-__all__ = ["EXAMPLES", "ROOT", "compare", "compare_metrics", "record", "send", "with_version"]
+__all__ = [
+    "EXAMPLES",
+    "RECORDED_BASE",
+    "ROOT",
+    "compare",
+    "compare_metrics",
+    "record",
+    "send",
+    "with_base",
+    "with_version",
+]
 
 ROOT = Path(__file__).resolve().parents[2] / "openapi_examples"
 
+#: Absolute links in the examples (the landing page's) are written with this base URL;
+#: the replay puts the live service's in its place.
+RECORDED_BASE = "http://127.0.0.1:8000"
 CUBE = "velmora-irrigation"
 BASE = f"/cubes/{CUBE}"
 WEEK = "2025-06-01T00:00:00Z/2025-06-07T00:00:00Z"
@@ -302,7 +315,7 @@ def record(base_url: str, root: Path = ROOT, only: set[str] | None = None) -> No
             r = send(client, method, path, query, body)
             media = r.headers["content-type"]
             if media.startswith(_JSON_MEDIA):
-                content: Any = r.json()
+                content: Any = with_base(r.json(), base_url.rstrip("/"), RECORDED_BASE)
                 if only is not None:
                     content = with_version(content, live, kept)
             else:
@@ -321,6 +334,18 @@ def record(base_url: str, root: Path = ROOT, only: set[str] | None = None) -> No
             out = root / op_id / f"{name}.json"
             out.parent.mkdir(parents=True, exist_ok=True)
             out.write_text(json.dumps(doc, indent=2, ensure_ascii=False) + "\n")
+
+
+def with_base(body: Any, recorded: str, live: str) -> Any:
+    """``body`` with every string that starts with the base URL ``recorded`` starting with
+    ``live`` instead (absolute links name the host they were served from)."""
+    if isinstance(body, dict):
+        return {k: with_base(v, recorded, live) for k, v in body.items()}
+    if isinstance(body, list):
+        return [with_base(v, recorded, live) for v in body]
+    if isinstance(body, str) and body.startswith(recorded):
+        return live + body[len(recorded) :]
+    return body
 
 
 def with_version(body: Any, recorded: str, live: str) -> Any:

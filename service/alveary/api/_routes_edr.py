@@ -49,6 +49,7 @@ from alveary.api._edr_docs import (
 )
 from alveary.api._edr_problem import edr_error, exception_body
 from alveary.api._encode import encode
+from alveary.api._openapi30 import openapi_30
 from alveary.api._service import Encoder, Service
 from alveary.grid import MAX_LEVEL
 from alveary.query import (
@@ -371,6 +372,18 @@ async def collection(request: Request, cube: CollectionId, f: DocFormatParam = N
     service: Service = request.app.state.service
     source, snap = service.served(cube)
     return _json(collection_document(_collection(source, snap)))
+
+
+@router.get("/openapi-3.0.json", include_in_schema=False)
+async def openapi_document_30(request: Request) -> Response:
+    """The API definition in OpenAPI 3.0, for clients that read only 3.0 (the landing
+    page links it as a second ``service-desc``)."""
+    state = request.app.state
+    body = getattr(state, "openapi_30", None)
+    if body is None:
+        body = orjson.dumps(openapi_30(request.app.openapi()))
+        state.openapi_30 = body
+    return Response(body, media_type="application/vnd.oai.openapi+json;version=3.0")
 
 
 # --- queries ----------------------------------------------------------------------------

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import anyio.to_thread
 import orjson
-from fastapi import APIRouter
+from fastapi import APIRouter, Request
 from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
@@ -19,6 +19,12 @@ router = APIRouter(tags=["service"])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
 _DESCRIPTION = "Spatial and time queries over hexagonal, equal-area data cubes"
+_OPENAPI_30_LINK = {
+    "href": "/openapi-3.0.json",
+    "rel": "service-desc",
+    "type": "application/vnd.oai.openapi+json;version=3.0",
+    "title": "The API definition (OpenAPI 3.0, for clients that read only 3.0)",
+}
 _CUBES_LINK = {
     "href": "/cubes",
     "rel": "data",
@@ -34,14 +40,18 @@ _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
     summary="Landing page: links to the API definition, conformance, collections and cubes",
     response_model=Landing,
 )
-async def landing(service: ServiceDep) -> Response:
+async def landing(request: Request) -> Response:
     # One landing page for both APIs: OGC API - EDR's links (service-desc, service-doc,
     # conformance, data -> /collections) and the native /cubes. EDR's landing-page schema
-    # has no member for a version, so it is part of the description.
+    # has no member for a version, so it is part of the description. Links are absolute
+    # (from the request's base URL): some clients (OWSLib's api()) follow them as given.
+    base = str(request.base_url).rstrip("/")
+    extra = [{**link, "href": base + link["href"]} for link in (_OPENAPI_30_LINK, _CUBES_LINK)]
     body = landing_page(
+        base,
         title="alveary",
         description=f"{_DESCRIPTION} (alveary {__version__}).",
-        extra_links=[_CUBES_LINK],
+        extra_links=extra,
     )
     return Response(orjson.dumps(body), media_type="application/json")
 
