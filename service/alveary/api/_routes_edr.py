@@ -13,8 +13,9 @@ and differ only in how parameters are read and answers encoded:
   400, and every error body is the EDR exception document with problem+json members
   (:mod:`alveary.api._edr_problem`).
 
-Cubes are looked up only through :class:`Service` (never its catalogue directly), so
-whatever checks the service applies to a cube apply here too.
+Cubes are looked up only through :class:`Service` with the request's credentials (never
+its catalogue directly), so a private cube the request may not read is 404 here as on
+the native paths, and is left out of ``/collections``.
 """
 
 from __future__ import annotations
@@ -357,7 +358,8 @@ async def conformance(f: DocFormatParam = None) -> Response:
 async def collections(request: Request, f: DocFormatParam = None) -> Response:
     _doc_format(f)
     service: Service = request.app.state.service
-    cubes = [_collection(source, snap) for source, snap in service.served_all()]
+    credentials = await service.credentials(request.scope)
+    cubes = [_collection(source, snap) for source, snap in service.served_all(credentials)]
     return _json(collections_document(cubes))
 
 
@@ -370,7 +372,7 @@ async def collections(request: Request, f: DocFormatParam = None) -> Response:
 async def collection(request: Request, cube: CollectionId, f: DocFormatParam = None) -> Response:
     _doc_format(f)
     service: Service = request.app.state.service
-    source, snap = service.served(cube)
+    source, snap = service.served(cube, await service.credentials(request.scope))
     return _json(collection_document(_collection(source, snap)))
 
 
@@ -462,6 +464,7 @@ async def _answer(
         query,
         name,
         if_none_match,
+        credentials=await service.credentials(request.scope),
         geometry=geometry if stats else None,
         key=request_key(request.scope),
         encoder=_encoder(fmt, media, geometry if stats else None),

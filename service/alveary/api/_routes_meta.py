@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import anyio.to_thread
 import orjson
 from fastapi import APIRouter, Request
 from starlette.responses import Response
@@ -11,7 +10,7 @@ from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
 from alveary.api._edr_docs import landing_page
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import ServiceDep
+from alveary.api.deps import CredentialsDep, ServiceDep
 
 __all__ = ["router"]
 
@@ -69,16 +68,18 @@ async def health() -> Response:
 @router.get(
     "/readyz",
     operation_id="ready",
-    summary="Readiness: every configured store can be reached",
+    summary="Readiness: every configured store can be reached and has what it should",
     response_model=Ready,
     responses={_NOT_READY: {"description": "A store cannot be reached.", "model": Ready}},
 )
-async def ready(service: ServiceDep) -> Response:
-    status = await anyio.to_thread.run_sync(service.ready)
+async def ready(service: ServiceDep, credentials: CredentialsDep) -> Response:
+    status = await service.ready_async()
     ok = all(v is None for v in status.values())
+    # Every store counts for readiness; only the cubes the caller may read are named.
+    named = {k: v for k, v in status.items() if service.readable(k, credentials)}
     body = {
         "ready": ok,
-        "cubes": {k: "ok" if v is None else "unreachable" for k, v in status.items()},
+        "cubes": {k: "ok" if v is None else "unreachable" for k, v in named.items()},
     }
     headers = None if ok else {"Retry-After": str(service.settings.retry_after)}
     return Response(
@@ -95,5 +96,7 @@ async def ready(service: ServiceDep) -> Response:
     summary="Prometheus metrics (text exposition format)",
     responses={200: {"content": {"text/plain": {"schema": {"type": "string"}}}}},
 )
-async def metrics(service: ServiceDep) -> Response:
-    return Response(service.metrics.render(), media_type="text/plain; version=0.0.4; charset=utf-8")
+async def metrics(service: ServiceDep, credentials: CredentialsDep) -> Response:
+    # Series labelled with a cube id only for the cubes the scraper may read.
+    body = service.metrics.render(lambda cube_id: service.readable(cube_id, credentials))
+    return Response(body, media_type="text/plain; version=0.0.4; charset=utf-8")
