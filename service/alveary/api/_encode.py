@@ -155,6 +155,9 @@ def _header(result: ZoneResult | StatsResult) -> dict[str, Any]:
     body.update(time_axis_json(result.times, result.axis))
     if result.analysis:
         body["analysis"] = result.analysis
+    note = getattr(result, "note", None)
+    if note:
+        body["note"] = note
     return body
 
 
@@ -279,7 +282,14 @@ def _stats_body(result: StatsResult) -> dict[str, Any]:
 
 
 def _stats_geojson(result: StatsResult, geometry: dict[str, Any] | None) -> bytes:
-    feature = {"type": "Feature", "geometry": geometry, "properties": _stats_body(result)}
+    # ``geometry`` may be a Feature: its geometry is used and its properties are kept,
+    # with the answer's members added (an answer member wins over a posted one).
+    props: dict[str, Any] = {}
+    if geometry is not None and geometry.get("type") == "Feature":
+        props = dict(geometry.get("properties") or {})
+        geometry = geometry.get("geometry")
+    props.update(_stats_body(result))
+    feature = {"type": "Feature", "geometry": geometry, "properties": props}
     return orjson.dumps(feature, option=_JSON_OPTS)
 
 
@@ -351,9 +361,10 @@ def _zone_csv_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
         zones = result.zones[sel]
         n = zones.size
         lat, lon = grid.zone_to_point(zones)
+        repeat = pa.array(np.repeat(np.arange(n), t))
         cols: list[pa.Array] = [
             pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64()),
-            pa.array(np.repeat(np.asarray(grid.zone_to_text(zones)), t).tolist(), pa.string()),
+            pa.array(np.asarray(grid.zone_to_text(zones)), pa.string()).take(repeat),
             pa.array(np.repeat(np.asarray(lat, dtype=np.float64), t)),
             pa.array(np.repeat(np.asarray(lon, dtype=np.float64), t)),
             *(_tiled(a, n) for a in axis.values()),
@@ -402,10 +413,16 @@ def _schema_meta(result: ZoneResult | StatsResult) -> dict[str, str]:
         "level": str(result.level),
         "units": orjson.dumps(units).decode(),
         "variables": orjson.dumps(_variables_json(result)).decode(),
+        **_note(result),
     }
     if result.analysis:
         meta["analysis"] = orjson.dumps(result.analysis).decode()
     return meta
+
+
+def _note(result: ZoneResult | StatsResult) -> dict[str, str]:
+    note = getattr(result, "note", None)
+    return {"note": str(note)} if note else {}
 
 
 def _arrow(table: pa.Table) -> bytes:

@@ -17,7 +17,14 @@ from alveary.query._analysis import (
 )
 from alveary.query._catalog import Catalog, CubeSource
 from alveary.query._cube import CubeSnapshot, ServedCube
-from alveary.query._edr_params import CRS84, WITHIN_UNITS
+from alveary.query._edr_params import (
+    CRS84,
+    WITHIN_UNITS,
+    check_crs,
+    check_z,
+    parse_parameter_names,
+    within_metres,
+)
 from alveary.query._execute import execute
 from alveary.query._focal import FOCAL_STATISTICS, MAX_FOCAL_K, FocalSpec, parse_focal
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
@@ -46,6 +53,7 @@ from alveary.query._timeagg import (
     TimeAggregation,
     parse_time_aggregation,
 )
+from alveary.query._wkt import coords_area, coords_lat_lon, parse_coords
 
 __all__ = [
     "AGGREGATES",
@@ -85,12 +93,18 @@ __all__ = [
     "analysis_steps",
     "apply_analysis",
     "bbox_area",
+    "check_crs",
+    "check_z",
+    "coords_area",
+    "coords_lat_lon",
     "execute",
     "format_time",
     "make_plan",
     "parse_bbox",
+    "parse_coords",
     "parse_datetime",
     "parse_focal",
+    "parse_parameter_names",
     "parse_polygon",
     "parse_stats",
     "parse_time_aggregation",
@@ -102,5 +116,6 @@ __all__ = [
     "select_times",
     "step_bounds",
     "time_axis_json",
+    "within_metres",
     "zone_statistics",
 ]

@@ -62,6 +62,9 @@ class ZoneResult:
     analysis:
         What was computed (neighbourhood statistic, time aggregation, climatology year
         counts and warnings), as JSON-ready metadata; empty for plain values.
+    note:
+        A remark the answer carries for its reader, such as why it has no rows (a
+        ``nearest`` radius query that found no zone with data); ``None`` when there is none.
     """
 
     cube: str
@@ -75,6 +78,7 @@ class ZoneResult:
     kind: str = "zones"
     axis: TimeAxis | None = None
     analysis: dict[str, Any] = field(default_factory=dict)
+    note: str | None = None
 
     @property
     def rows(self) -> int:
