@@ -97,6 +97,10 @@ def _body_size(answer: Answer) -> int:
     return len(answer.body)
 
 
+# cube queries, map tiles and vector tiles
+_CACHED_PATHS = ("/cubes/", "/collections/")
+
+
 class AnswerFrontMiddleware:
     """Answer an identical repeat of a cube GET from the cache, before routing.
 
@@ -117,7 +121,11 @@ class AnswerFrontMiddleware:
         self.headers = headers
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] == "http" and self.cache.max_bytes and scope["path"].startswith("/cubes/"):
+        if (
+            scope["type"] == "http"
+            and self.cache.max_bytes
+            and scope["path"].startswith(_CACHED_PATHS)
+        ):
             key = request_key(scope)
             answer = self.cache.lookup(key) if key is not None else None
             if answer is not None and self.current_version(answer.cube) == answer.version:

@@ -16,6 +16,7 @@ from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_openapi
 from alveary.api._problem import domain_response, install_handlers
 from alveary.api._routes_cubes import router as cubes_router
+from alveary.api._routes_maps import router as maps_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
 from alveary.api._service import Service
@@ -114,6 +115,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     app.include_router(meta_router)
     app.include_router(cubes_router)
     app.include_router(zones_router)
+    app.include_router(maps_router)
     install_openapi(app)
     _add_middleware(app, service, settings)
     return app

@@ -9,8 +9,9 @@ from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
+from alveary.api._routes_maps import landing_html, wants_html
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import ServiceDep
+from alveary.api.deps import AcceptHeader, ServiceDep
 
 __all__ = ["router"]
 
@@ -23,7 +24,9 @@ _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 @router.get(
     "/", operation_id="landing", summary="Landing page: links and version", response_model=Landing
 )
-async def landing(service: ServiceDep) -> Response:
+async def landing(service: ServiceDep, accept: AcceptHeader = None) -> Response:
+    if wants_html(accept):  # a browser: a page with links to the map and the API docs
+        return Response(landing_html(service), media_type="text/html; charset=utf-8")
     body = {
         "title": "alveary",
         "description": "Spatial and time queries over hexagonal, equal-area data cubes.",
@@ -37,6 +40,7 @@ async def landing(service: ServiceDep) -> Response:
                 "type": "application/vnd.oai.openapi+json;version=3.1",
             },
             {"href": "/docs", "rel": "service-doc", "type": "text/html"},
+            {"href": "/map", "rel": "alternate", "type": "text/html", "title": "Map"},
         ],
     }
     return Response(orjson.dumps(body), media_type="application/json")

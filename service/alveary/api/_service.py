@@ -10,6 +10,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import logging
+from collections.abc import Awaitable, Callable
 from typing import Any
 
 import anyio.to_thread
@@ -25,11 +26,14 @@ from alveary.cube import ChunkCache
 from alveary.query import (
     BboxQuery,
     Catalog,
+    CubeSource,
+    PixelZoneCache,
     Plan,
     PointQuery,
     PolygonQuery,
     Query,
     Resolved,
+    ServedCube,
     StatsResult,
     ZoneResult,
     execute,
@@ -59,6 +63,8 @@ class Service:
         )
         self.plans = PlanCache(settings.plan_cache_bytes)
         self.metrics = Metrics(self.catalog, self.cache, self.answers)
+        # pixel-to-zone maps of map tiles: another time step of a tile reuses its map
+        self.pixels = PixelZoneCache(settings.pixel_cache_bytes)
         self.cache_control = f"public, max-age={settings.max_age}"
         self._refresher: asyncio.Task[None] | None = None
 
@@ -89,6 +95,18 @@ class Service:
 
     def headers(self, etag: str) -> dict[str, str]:
         return {"ETag": etag, "Cache-Control": self.cache_control, "Vary": "Accept"}
+
+    def cube(self, cube_id: str) -> ServedCube:
+        """The cube a request names (:class:`NotFound` if there is none to see)."""
+        return self.catalog.get(cube_id)
+
+    def cube_source(self, cube_id: str) -> CubeSource:
+        """The configuration of a cube a request names (:class:`NotFound` as :meth:`cube`)."""
+        return self.catalog.source(cube_id)
+
+    def visible_cubes(self) -> list[tuple[CubeSource, ServedCube | None]]:
+        """(source, cube or None) of every cube a request may list."""
+        return self.catalog.cubes()
 
     def current_version(self, cube_id: str) -> str | None:
         """The version a cube serves now (None if it is not open)."""
@@ -129,6 +147,34 @@ class Service:
             operation = f"query_{query.op}"
             answer = Answer(cube_id, resolved.version, etag, body, media, operation)
             self.answers.put_answer(answer, key)
+        return Response(body, media_type=media, headers=headers)
+
+    async def cached(
+        self,
+        cube_id: str,
+        version: str,
+        etag: str,
+        make: Callable[[], Awaitable[tuple[bytes, str]]],
+        if_none_match: str | None,
+        *,
+        key: str | None = None,
+        operation: str = "",
+    ) -> Response:
+        """An answer made by ``make()`` (body, media type) unless the client or the answer
+        cache already holds it: 304 on a matching If-None-Match, else the cached body,
+        else made now and kept under its ETag (and the raw request ``key``)."""
+        headers = self.headers(etag)
+        if matches(if_none_match, etag):
+            return Response(status_code=304, headers=headers)
+        caching = self.answers.max_bytes > 0
+        found = self.answers.get(etag) if caching else None
+        if found is not None:
+            if key is not None:
+                self.answers.remember(key, etag)
+            return Response(found.body, media_type=found.media_type, headers=headers)
+        body, media = await make()
+        if caching:
+            self.answers.put_answer(Answer(cube_id, version, etag, body, media, operation), key)
         return Response(body, media_type=media, headers=headers)
 
     async def _plan(self, resolved: Resolved) -> Plan:
