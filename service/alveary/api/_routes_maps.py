@@ -185,6 +185,7 @@ async def map_tilesets(request: Request, cube: CubeId) -> Response:
 
 @router.get(
     "/collections/{cube}/map/tiles/WebMercatorQuad",
+    include_in_schema=False,
     operation_id="map_tileset",
     summary="The WebMercatorQuad map tile set of a cube",
     responses={200: {"content": {"application/json": {"schema": {"type": "object"}}}}},
@@ -437,6 +438,7 @@ def _page(basemap: str) -> bytes:
 
 @router.get(
     "/map",
+    include_in_schema=False,  # a page for people, linked from / and each cube
     operation_id="map_page",
     summary="The map page: a cube's tiles, pickers, legend, and a zone's time series",
     response_class=Response,
