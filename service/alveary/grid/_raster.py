@@ -24,16 +24,8 @@ import numpy.typing as npt
 from alveary.grid._authalic import geodetic_to_xyz
 from alveary.grid._checks import check_lat_lon
 from alveary.grid._ids import check_level
-from alveary.grid._lattice import (
-    _OFFSET,
-    _TO_ST_SECTOR,
-    BLOCK,
-    chart_to_ids,
-    round_hex,
-    xyz_to_ids,
-)
+from alveary.grid._lattice import _OFFSET, _TO_ST_SECTOR, BLOCK, chart_to_ids, xyz_to_ids
 from alveary.grid._snyder import face_of, forward_sector
-from alveary.grid._xp import ARRAYS
 
 __all__ = ["raster_to_zone"]
 
@@ -138,19 +130,28 @@ def raster_to_zone(lat: Any, lon: Any, level: int, *, step: int = STEP) -> Ids:
     b_r = b[rcell] * (1.0 - rf) + b[rcell + 1] * rf
     ai = a_r[:, ccell] * (1.0 - cf) + a_r[:, ccell + 1] * cf
     bi = b_r[:, ccell] * (1.0 - cf) + b_r[:, ccell + 1] * cf
-    ra, rb = round_hex(ai, bi, ARRAYS)
-    # points where an error up to `bound` in a and b could change the rounding
+    # hexagon rounding (as round_hex), keeping the distances for the margins
     ci = -ai - bi
-    da, db = np.abs(ai - np.rint(ai)), np.abs(bi - np.rint(bi))
-    dc = np.abs(ci - np.rint(ci))
-    risky = (0.5 - da <= bound) | (0.5 - db <= bound) | (0.5 - dc <= 2.0 * bound)
+    ra, rb, rc = np.rint(ai), np.rint(bi), np.rint(ci)
+    da, db, dc = np.abs(ra - ai), np.abs(rb - bi), np.abs(rc - ci)
+    fix_a = (da > db) & (da > dc)
+    fix_b = (db > dc) & (da <= db)
+    ra = np.where(fix_a, -rb - rc, ra).astype(np.int64)
+    rb = np.where(fix_b, -ra - rc, rb).astype(np.int64)
+    # points where an error up to `bound` in a and b could change the rounding
+    risky = (da >= 0.5 - bound) | (db >= 0.5 - bound) | (dc >= 0.5 - 2.0 * bound)
     risky |= np.abs(da - db) <= 2.0 * bound
     risky |= np.abs(da - dc) <= 3.0 * bound
     risky |= np.abs(db - dc) <= 3.0 * bound
     risky |= ~uniform[rcell][:, ccell]
-    strip = (face // 4)[rcell][:, ccell]  # the cell's top-left corner's: the cell's face
-    out = chart_to_ids(level, strip, ra.astype(np.int64), rb.astype(np.int64))
-    out = np.asarray(out, dtype=np.uint64).reshape(h, w)
+    strip = (face // 4)[rcell][:, ccell]  # the cell's face (all four corners share it)
+    # ids of points their strip owns (0 < a <= 2n, 0 <= b < n) directly, as _ids.encode;
+    # the others (beyond a seam, or an apex) through the seam rules
+    out = (strip << (2 * level + 1)) + ((ra - 1) << level) + rb + (1 << (2 * level + 4))
+    others = (ra <= 0) | (ra > 2 * n) | (rb < 0) | (rb >= n)
+    if others.any():
+        out[others] = chart_to_ids(level, strip[others], ra[others], rb[others])
+    out = out.astype(np.uint64)
     rr, cc = np.nonzero(risky)
     if rr.size:
         out[rr, cc] = _exact(la[rr], lo[cc], level)
