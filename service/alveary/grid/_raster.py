@@ -151,8 +151,8 @@ def raster_to_zone(lat: Any, lon: Any, level: int, *, step: int = STEP) -> Ids:
     others = (ra <= 0) | (ra > 2 * n) | (rb < 0) | (rb >= n)
     if others.any():
         out[others] = chart_to_ids(level, strip[others], ra[others], rb[others])
-    out = out.astype(np.uint64)
+    ids: Ids = np.asarray(out, dtype=np.uint64)
     rr, cc = np.nonzero(risky)
     if rr.size:
-        out[rr, cc] = _exact(la[rr], lo[cc], level)
-    return out
+        ids[rr, cc] = _exact(la[rr], lo[cc], level)
+    return ids
