@@ -2,8 +2,8 @@
 
 ``alveary build-demo`` writes to a local directory only, so this job does the same two
 steps against a URL: it writes the invented district's monthly NetCDF files to a
-temporary directory (``write_demo_sources``) and ingests them with the demo's settings
-(area mean to level 14, pyramid down to level 9) through the public ``ingest``.
+temporary directory and ingests them with the demo's settings (area mean to level 14,
+pyramid down to level 9), through the public ``publish_demo``.
 
 Environment: ``ALVEARY_DEMO_URL`` (``s3://bucket/prefix``, required), ``ALVEARY_DEMO_DAYS``
 (default 365) and the usual AWS variables: ``AWS_ENDPOINT_URL``, ``AWS_DEFAULT_REGION``,
@@ -18,10 +18,7 @@ from __future__ import annotations
 
 import os
 import sys
-import tempfile
 from urllib.parse import urlparse
-
-LEVEL, MIN_LEVEL = 14, 9  # the demo's levels, as `alveary build-demo` builds them
 
 
 def ensure_bucket(bucket: str) -> None:
@@ -47,26 +44,9 @@ def build(url: str, days: int) -> int:
         print(f"demo-build: a cube is already published at {url}; nothing to do")
         return 0
 
-    from alveary.ingest import ingest
-    from alveary.ingest.demo import DEMO_CUBE_ID, write_demo_sources
+    from alveary.ingest import publish_demo
 
-    with tempfile.TemporaryDirectory(prefix="alveary-demo-") as tmp:
-        paths = write_demo_sources(tmp, days=days)
-        summary = ingest(
-            paths,
-            url,
-            LEVEL,
-            variables=["soil_moisture", "canopy_temperature"],
-            method="mean",
-            pyramid=True,
-            pyramid_min_level=MIN_LEVEL,
-            cube_id=DEMO_CUBE_ID,
-            title="Velmora Flats irrigation district (invented demo data)",
-            summary=(
-                "Invented daily soil moisture and canopy temperature for a district that "
-                "does not exist. Demo data only: not for irrigation or any other decision."
-            ),
-        )
+    summary = publish_demo(url, days=days)
     print(summary.text())
     return 0
 

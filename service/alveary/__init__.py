@@ -10,6 +10,7 @@ from alveary._errors import (
     InvalidInput,
     LimitExceeded,
     NotFound,
+    RateLimited,
     StoreUnavailable,
 )
 
@@ -25,6 +26,7 @@ __all__ = [
     "InvalidInput",
     "LimitExceeded",
     "NotFound",
+    "RateLimited",
     "StoreUnavailable",
     "__version__",
 ]

@@ -10,6 +10,7 @@ built-in exception a caller would expect, so ``except ValueError`` keeps working
     │   └── IngestError                    a source cannot be turned into a cube
     ├── NotFound (LookupError)             unknown cube, variable or zone
     ├── LimitExceeded (ValueError)         a request over a configured limit
+    ├── RateLimited                        a client sent more requests than its rate allows
     ├── StoreUnavailable (OSError)         the object store cannot be reached
     ├── ChunkDecodeError (OSError)         a stored chunk cannot be decoded
     └── DeadlineExceeded (TimeoutError)    a request ran past its deadline
@@ -34,6 +35,7 @@ __all__ = [
     "InvalidInput",
     "LimitExceeded",
     "NotFound",
+    "RateLimited",
     "StoreUnavailable",
     "error_for_status",
     "http_status",
@@ -114,6 +116,16 @@ class LimitExceeded(AlvearyError, ValueError):
         super().__init__(self.message)
 
 
+class RateLimited(AlvearyError):
+    """A client sent more requests than its rate limit allows; retry after ``retry_after``
+    seconds."""
+
+    def __init__(self, message: str = "too many requests", retry_after: int = 1) -> None:
+        self.message = message
+        self.retry_after = retry_after
+        super().__init__(message)
+
+
 class StoreUnavailable(AlvearyError, OSError):
     """The object store behind a cube cannot be reached."""
 
@@ -140,6 +152,7 @@ HTTP_STATUS: tuple[HttpStatus, ...] = (
     HttpStatus(LimitExceeded, 413, "Request over a configured limit"),
     HttpStatus(InvalidInput, 422, "Invalid parameter"),
     HttpStatus(NotFound, 404, "Not found"),
+    HttpStatus(RateLimited, 429, "Too many requests"),
     HttpStatus(StoreUnavailable, 503, "Store unavailable"),
     HttpStatus(ChunkDecodeError, 502, "Stored data cannot be decoded"),
     HttpStatus(DeadlineExceeded, 504, "Request deadline exceeded"),

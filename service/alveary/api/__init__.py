@@ -4,6 +4,7 @@ Build it with :func:`create_app` from validated :class:`Settings` (:func:`load_s
 names the setting at fault); the ``alveary serve`` command runs it under uvicorn.
 """
 
+from alveary.api._access import hash_key, key_line, new_key, verify_key
 from alveary.api._app import create_app, create_app_from_env
 from alveary.api._settings import (
     CubeConfig,
@@ -19,6 +20,10 @@ __all__ = [
     "create_app",
     "create_app_from_env",
     "default_store",
+    "hash_key",
+    "key_line",
     "load_settings",
+    "new_key",
     "scan_store",
+    "verify_key",
 ]

@@ -4,19 +4,21 @@ An answer is stored under its ETag, which is derived from the cube's published v
 and the normalised query (and the format): a cached answer is exactly what the same
 request would compute again. The front also remembers which raw GET request (path, query
 string, Accept) led to which ETag, so an identical repeat, as dashboards send many times a
-minute, is answered before routing and parameter parsing, after checking that the cube
-still serves the version the answer was made from. A new version makes every old entry
-unreachable; they age out of the LRU.
+minute, is answered before routing and parameter parsing, after checking that the
+requester may read the cube (else the request goes on to routing, which answers 404 as
+for an unknown cube) and that the cube still serves the version the answer was made from.
+A new version makes every old entry unreachable; they age out of the LRU.
 """
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Awaitable, Callable
 from dataclasses import dataclass
 
 import cachetools
 from starlette.types import ASGIApp, Receive, Scope, Send
 
+from alveary.api._access import Credentials
 from alveary.api._etag import matches
 from alveary.cube import ByteLRU
 from alveary.query import Plan
@@ -105,7 +107,10 @@ class AnswerFrontMiddleware:
     """Answer an identical repeat of a cube GET from the cache, before routing.
 
     ``current_version(cube_id)`` returns the version a cube serves now (or None); an entry
-    made from another version is not used.
+    made from another version is not used. ``credentials(scope)`` and
+    ``readable(cube_id, credentials)`` are the service's access check: an entry of a cube
+    the requester may not read is not used. ``headers(etag, cube_id)`` gives the caching
+    headers.
     """
 
     def __init__(
@@ -113,12 +118,16 @@ class AnswerFrontMiddleware:
         app: ASGIApp,
         cache: AnswerCache,
         current_version: Callable[[str], str | None],
-        headers: Callable[[str], dict[str, str]],
+        headers: Callable[[str, str], dict[str, str]],
+        credentials: Callable[[Scope], Awaitable[Credentials]],
+        readable: Callable[[str, Credentials], bool],
     ) -> None:
         self.app = app
         self.cache = cache
         self.current_version = current_version
         self.headers = headers
+        self.credentials = credentials
+        self.readable = readable
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if (
@@ -128,7 +137,11 @@ class AnswerFrontMiddleware:
         ):
             key = request_key(scope)
             answer = self.cache.lookup(key) if key is not None else None
-            if answer is not None and self.current_version(answer.cube) == answer.version:
+            if (
+                answer is not None
+                and self.readable(answer.cube, await self.credentials(scope))
+                and self.current_version(answer.cube) == answer.version
+            ):
                 self.cache.hits += 1
                 scope["alveary.operation"] = answer.operation
                 await self._send(answer, scope, send)
@@ -140,7 +153,8 @@ class AnswerFrontMiddleware:
         for name, value in scope.get("headers", ()):
             if name == b"if-none-match":
                 inm = value.decode("latin-1")
-        headers = [(k.lower().encode(), v.encode()) for k, v in self.headers(answer.etag).items()]
+        pairs = self.headers(answer.etag, answer.cube).items()
+        headers = [(k.lower().encode(), v.encode()) for k, v in pairs]
         if matches(inm, answer.etag):
             await send({"type": "http.response.start", "status": 304, "headers": headers})
             await send({"type": "http.response.body", "body": b""})

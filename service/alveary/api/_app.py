@@ -15,6 +15,7 @@ from alveary.api._answers import AnswerFrontMiddleware
 from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_openapi
 from alveary.api._problem import domain_response, install_handlers
+from alveary.api._ratelimit import RateLimit, RateLimitMiddleware
 from alveary.api._routes_cubes import router as cubes_router
 from alveary.api._routes_maps import router as maps_router
 from alveary.api._routes_meta import router as meta_router
@@ -128,14 +129,23 @@ def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
         cache=service.answers,
         current_version=service.current_version,
         headers=service.headers,
+        credentials=service.credentials,
+        readable=service.readable,
     )
+    if settings.rate_limit_rps > 0:
+        app.add_middleware(
+            RateLimitMiddleware,
+            limit=RateLimit(settings.rate_limit_rps, settings.burst, settings.rate_limit_storage),
+            credentials=service.credentials,
+            client_header=settings.rate_limit_client_header,
+        )
     if settings.cors_origins:
         app.add_middleware(
             CORSMiddleware,
             allow_origins=settings.cors_origins,
             allow_methods=["GET", "POST"],
             allow_headers=["*"],
-            expose_headers=["ETag", "Retry-After"],
+            expose_headers=["ETag", "Retry-After", "X-Request-Id"],
             max_age=600,
         )
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)

@@ -2,13 +2,15 @@
 
 Request counts and latency histograms per operation id are recorded by an ASGI
 middleware; store and cache counters (chunk GETs, bytes read, cache hits and misses) are
-read from the cubes and the chunk cache when /metrics is scraped.
+read from the cubes and the chunk cache when /metrics is scraped. Series labelled with a
+cube id are rendered only for the cubes the scraper may read (a private cube's only with
+one of its API keys); totals over all cubes are not labelled.
 """
 
 from __future__ import annotations
 
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 
 from prometheus_client import CollectorRegistry, Counter, Histogram, generate_latest
 from prometheus_client.core import CounterMetricFamily, GaugeMetricFamily, Metric
@@ -31,6 +33,7 @@ class _StoreCollector(Collector):
         self._catalog = catalog
         self._cache = cache
         self._answers = answers
+        self.visible: Callable[[str], bool] = _nothing
 
     def collect(self) -> Iterator[Metric]:
         gets = CounterMetricFamily(
@@ -40,7 +43,7 @@ class _StoreCollector(Collector):
             "alveary_store_bytes_read", "Bytes read from the store.", labels=["cube"]
         )
         for source, cube in self._catalog.cubes():
-            if cube is not None:
+            if cube is not None and self.visible(source.id):
                 gets.add_metric([source.id], cube.stats.chunk_gets)
                 nbytes.add_metric([source.id], cube.stats.bytes_read)
         yield gets
@@ -54,6 +57,10 @@ class _StoreCollector(Collector):
         yield _counter("alveary_answer_cache_hits", "Answers served from the cache.", answers.hits)
         yield _counter("alveary_answer_cache_misses", "Answers computed.", answers.misses)
         yield _gauge("alveary_answer_cache_bytes", "Bytes of cached answers.", answers.bytes)
+
+
+def _nothing(cube_id: str) -> bool:
+    return False
 
 
 def _counter(name: str, text: str, value: float) -> CounterMetricFamily:
@@ -82,10 +89,16 @@ class Metrics:
             buckets=_BUCKETS,
             registry=self.registry,
         )
-        self.registry.register(_StoreCollector(catalog, cache, answers))
+        self._store = _StoreCollector(catalog, cache, answers)
+        self.registry.register(self._store)
 
-    def render(self) -> bytes:
-        return generate_latest(self.registry)
+    def render(self, visible: Callable[[str], bool] = _nothing) -> bytes:
+        """The exposition text; per-cube series only where ``visible(cube_id)``."""
+        self._store.visible = visible
+        try:
+            return generate_latest(self.registry)
+        finally:
+            self._store.visible = _nothing
 
     def observe(self, operation: str, status: int, seconds: float) -> None:
         self.requests.labels(operation, str(status)).inc()

@@ -28,6 +28,7 @@ from alveary._errors import (
     InvalidInput,
     LimitExceeded,
     NotFound,
+    RateLimited,
     StoreUnavailable,
     http_status,
 )
@@ -103,6 +104,14 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
         )
     if isinstance(exc, NotFound):
         return problem_response(status, title, exc.message, kind=exc.kind, name=str(exc.name))
+    if isinstance(exc, RateLimited):
+        return problem_response(
+            status,
+            title,
+            exc.message,
+            headers={"Retry-After": str(exc.retry_after)},
+            retry_after=exc.retry_after,
+        )
     # Store and decode errors may carry URLs or paths: the client only gets the title.
     log.warning("%s: %s", type(exc).__name__, exc)
     detail = next((d for cls, d in _PUBLIC_DETAIL if isinstance(exc, cls)), "Internal error.")

@@ -26,6 +26,7 @@ from alveary.api.deps import (
     CUBE_FORMATS,
     AcceptHeader,
     BboxParam,
+    CredentialsDep,
     CubeId,
     DatetimeParam,
     FormatDep,
@@ -156,8 +157,9 @@ def _map_links(cube_id: str) -> list[dict[str, str]]:
     summary="List the cubes this server publishes",
     response_model=CubeList,
 )
-async def list_cubes(service: ServiceDep) -> Response:
-    out = [_cube_meta(s.id, s.title, cube, full=False) for s, cube in service.catalog.cubes()]
+async def list_cubes(service: ServiceDep, credentials: CredentialsDep) -> Response:
+    readable = service.cubes_for(credentials)
+    out = [_cube_meta(s.id, s.title, cube, full=False) for s, cube in readable]
     return _json({"cubes": out})
 
 
@@ -167,9 +169,9 @@ async def list_cubes(service: ServiceDep) -> Response:
     summary="One cube: variables, units, levels, time axis, coverage and version",
     response_model=CubeMeta,
 )
-async def get_cube(service: ServiceDep, cube: CubeId) -> Response:
-    source = service.catalog.source(cube)
-    obj = service.catalog.get(cube)
+async def get_cube(service: ServiceDep, credentials: CredentialsDep, cube: CubeId) -> Response:
+    source = service.source_for(cube, credentials)
+    obj = service.cube_for(cube, credentials)
     return _json(_cube_meta(cube, source.title, obj, full=True))
 
 
@@ -201,7 +203,9 @@ async def query_point(
     sel = make_selection(level, vars_, time)
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    credentials = await service.credentials(request.scope)
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 @router.get(
@@ -219,6 +223,7 @@ async def query_point(
 async def query_disk(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     k: KParam,
     sel: SelectionDep,
@@ -230,7 +235,8 @@ async def query_disk(
 ) -> Response:
     zone_id = parse_zone(zone, "zone") if zone is not None else None
     query = DiskQuery(k=k, lat=lat, lon=lon, zone=zone_id, selection=sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 @router.get(
@@ -248,6 +254,7 @@ async def query_disk(
 async def query_radius(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     lat: LatParam,
     lon: LonParam,
@@ -258,7 +265,8 @@ async def query_radius(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     query = RadiusQuery(lat, lon, meters, nearest, sel)
-    return await service.answer(cube, query, fmt, if_none_match, key=request_key(request.scope))
+    key = request_key(request.scope)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials, key=key)
 
 
 _AREA_DOC = (
@@ -280,6 +288,7 @@ _AREA_DOC = (
 async def query_bbox(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     bbox: BboxParam,
     sel: SelectionDep,
@@ -293,7 +302,9 @@ async def query_bbox(
     if stats and fmt == "geojson":
         geometry = _bbox_geometry(west, south, east, north)
     key = request_key(request.scope)
-    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry, key=key)
+    return await service.answer(
+        cube, query, fmt, if_none_match, credentials=credentials, geometry=geometry, key=key
+    )
 
 
 def _bbox_geometry(west: float, south: float, east: float, north: float) -> dict[str, Any]:
@@ -334,6 +345,7 @@ async def _json_body(request: Request) -> Any:
 async def query_polygon(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     sel: SelectionDep,
     fmt: FormatDep,
@@ -344,7 +356,9 @@ async def query_polygon(
     area = parse_polygon(body, service.limits.max_polygon_vertices)
     query = PolygonQuery(area, stats, sel)
     geometry = area.geometry if stats and fmt == "geojson" else None
-    return await service.answer(cube, query, fmt, if_none_match, geometry=geometry)
+    return await service.answer(
+        cube, query, fmt, if_none_match, credentials=credentials, geometry=geometry
+    )
 
 
 @router.post(
@@ -370,6 +384,7 @@ async def query_polygon(
 async def query_points(
     request: Request,
     service: ServiceDep,
+    credentials: CredentialsDep,
     cube: CubeId,
     sel: SelectionDep,
     fmt: FormatDep,
@@ -389,7 +404,7 @@ async def query_points(
     if not lat:
         raise InvalidInput("lat", "[]", "at least one point")
     query = PointsQuery(np.asarray(lat, dtype=float), np.asarray(lon, dtype=float), sel)
-    return await service.answer(cube, query, fmt, if_none_match)
+    return await service.answer(cube, query, fmt, if_none_match, credentials=credentials)
 
 
 def _keys(body: Any) -> str:

@@ -26,6 +26,7 @@ from starlette.responses import FileResponse, Response
 
 from alveary import __version__
 from alveary._errors import InvalidInput, LimitExceeded, NotFound
+from alveary.api._access import Credentials
 from alveary.api._answers import request_key
 from alveary.api._colours import ColourScale, colour_scale, parse_range
 from alveary.api._etag import etag_for
@@ -153,6 +154,14 @@ def _tile_query(request: Request, names: tuple[str, ...]) -> dict[str, str]:
     return {k: v for k, v in request.query_params.items() if k in names and v}
 
 
+def _doc_headers(
+    service: Service, cube: str, version: str, kind: str, query: dict[str, str]
+) -> dict[str, str]:
+    """Caching headers of a tiles description (it changes with the cube version)."""
+    normalised = "&".join(f"{k}={v}" for k, v in sorted(query.items()))
+    return service.headers(etag_for(f"tileset|{kind}|{cube}|{version}|{normalised}", "json"), cube)
+
+
 # -- PNG map tiles ---------------------------------------------------------------------
 
 
@@ -170,8 +179,9 @@ def _tile_query(request: Request, names: tuple[str, ...]) -> dict[str, str]:
 )
 async def map_tilesets(request: Request, cube: CubeId) -> Response:
     service = _service(request)
-    source = service.cube_source(cube)
-    snap = service.cube(cube).snapshot()
+    credentials = await service.credentials(request.scope)
+    source = service.source_for(cube, credentials)
+    snap = service.cube_for(cube, credentials).snapshot()
     query = _tile_query(request, ("vars", "datetime", "colormap", "range", "level"))
     doc = map_tiles_document(
         cube,
@@ -180,7 +190,7 @@ async def map_tilesets(request: Request, cube: CubeId) -> Response:
         bounds=snap.coverage,
         query=query,
     )
-    return _json(doc, {"Cache-Control": service.cache_control})
+    return _json(doc, _doc_headers(service, cube, snap.version, "map", query))
 
 
 @router.get(
@@ -232,7 +242,7 @@ async def map_tile(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     service = _service(request)
-    snap = service.cube(cube).snapshot()
+    snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     resolved = resolve_tile(
         cube, snap, z, y, x, variables=parse_vars(vars_), time=parse_datetime(time), level=level
     )
@@ -270,17 +280,19 @@ async def map_tile(
 )
 async def vector_tilesets(request: Request, cube: CubeId) -> Response:
     service = _service(request)
-    source = service.cube_source(cube)
-    snap = service.cube(cube).snapshot()
+    credentials = await service.credentials(request.scope)
+    source = service.source_for(cube, credentials)
+    snap = service.cube_for(cube, credentials).snapshot()
+    query = _tile_query(request, ("vars", "datetime", "level"))
     doc = vector_tiles_document(
         cube,
         title=source.title or snap.title or cube,
         levels=snap.levels,
         variables={k: v.units for k, v in snap.variables.items()},
         bounds=snap.coverage,
-        query=_tile_query(request, ("vars", "datetime", "level")),
+        query=query,
     )
-    return _json(doc, {"Cache-Control": service.cache_control})
+    return _json(doc, _doc_headers(service, cube, snap.version, "vector", query))
 
 
 def _vector_variables(snap: CubeSnapshot, names: tuple[str, ...] | None) -> tuple[str, ...]:
@@ -328,7 +340,7 @@ async def vector_tile(
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     service = _service(request)
-    snap = service.cube(cube).snapshot()
+    snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = _vector_variables(snap, parse_vars(vars_))
     resolved = resolve_tile(
         cube,
@@ -392,7 +404,7 @@ async def legend(
     accept: AcceptHeader = None,
 ) -> Response:
     service = _service(request)
-    snap = service.cube(cube).snapshot()
+    snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = parse_vars(vars_)
     variable = names[0] if names else next(iter(snap.variables))
     if (names and len(names) != 1) or variable not in snap.variables:
@@ -412,7 +424,7 @@ async def legend(
         body, media = legend_svg(scale, lo, hi, title=title, units=info.units), SVG_MEDIA_TYPE
     else:
         body, media = legend_png(scale, lo, hi, title=title, units=info.units), PNG_MEDIA_TYPE
-    return Response(body, media_type=media, headers=service.headers(etag))
+    return Response(body, media_type=media, headers=service.headers(etag, cube))
 
 
 def _legend_format(f: str | None, accept: str | None) -> str:
@@ -493,10 +505,11 @@ def wants_html(accept: str | None) -> bool:
     return html_q > 0 and (html_q, -html_at) > (json_q, -json_at)
 
 
-def landing_html(service: Service) -> bytes:
-    """The landing page for browsers: the map, the API docs, and the cubes."""
+def landing_html(service: Service, credentials: Credentials) -> bytes:
+    """The landing page for browsers: the map, the API docs, and the cubes these
+    credentials may read."""
     items = []
-    for source, cube in service.visible_cubes():
+    for source, cube in service.cubes_for(credentials):
         if cube is None:
             items.append(f"<li>{html.escape(source.title or source.id)} (not reachable yet)</li>")
             continue

@@ -11,7 +11,7 @@ from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
 from alveary.api._routes_maps import landing_html, wants_html
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import AcceptHeader, ServiceDep
+from alveary.api.deps import AcceptHeader, CredentialsDep, ServiceDep
 
 __all__ = ["router"]
 
@@ -24,9 +24,12 @@ _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 @router.get(
     "/", operation_id="landing", summary="Landing page: links and version", response_model=Landing
 )
-async def landing(service: ServiceDep, accept: AcceptHeader = None) -> Response:
+async def landing(
+    service: ServiceDep, credentials: CredentialsDep, accept: AcceptHeader = None
+) -> Response:
     if wants_html(accept):  # a browser: a page with links to the map and the API docs
-        return Response(landing_html(service), media_type="text/html; charset=utf-8")
+        page = landing_html(service, credentials)
+        return Response(page, media_type="text/html; charset=utf-8")
     body = {
         "title": "alveary",
         "description": "Spatial and time queries over hexagonal, equal-area data cubes.",
@@ -63,12 +66,14 @@ async def health() -> Response:
     response_model=Ready,
     responses={_NOT_READY: {"description": "A store cannot be reached.", "model": Ready}},
 )
-async def ready(service: ServiceDep) -> Response:
+async def ready(service: ServiceDep, credentials: CredentialsDep) -> Response:
     status = await anyio.to_thread.run_sync(service.ready)
     ok = all(v is None for v in status.values())
+    # Every store counts for readiness; only the cubes the caller may read are named.
+    named = {k: v for k, v in status.items() if service.readable(k, credentials)}
     body = {
         "ready": ok,
-        "cubes": {k: "ok" if v is None else "unreachable" for k, v in status.items()},
+        "cubes": {k: "ok" if v is None else "unreachable" for k, v in named.items()},
     }
     headers = None if ok else {"Retry-After": str(service.settings.retry_after)}
     return Response(
@@ -85,5 +90,7 @@ async def ready(service: ServiceDep) -> Response:
     summary="Prometheus metrics (text exposition format)",
     responses={200: {"content": {"text/plain": {"schema": {"type": "string"}}}}},
 )
-async def metrics(service: ServiceDep) -> Response:
-    return Response(service.metrics.render(), media_type="text/plain; version=0.0.4; charset=utf-8")
+async def metrics(service: ServiceDep, credentials: CredentialsDep) -> Response:
+    # Series labelled with a cube id only for the cubes the scraper may read.
+    body = service.metrics.render(lambda cube_id: service.readable(cube_id, credentials))
+    return Response(body, media_type="text/plain; version=0.0.4; charset=utf-8")

@@ -1,8 +1,13 @@
 """The state one app process shares between requests, and the request life cycle.
 
 :class:`Service` holds the catalogue, the chunk cache, the limits and the metrics; its
-:meth:`Service.answer` is the path every cube query takes: resolve (no I/O) -> ETag ->
-304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+:meth:`Service.answer` is the path every cube query takes: access -> resolve (no I/O) ->
+ETag -> 304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+
+Access: every route reaches a cube through :meth:`Service.cube_for` (or lists cubes with
+:meth:`Service.cubes_for`), with the request's :class:`Credentials` from
+:meth:`Service.credentials`. A private cube the credentials may not read raises the same
+:class:`NotFound` as an unknown cube id, so nobody learns that it exists.
 """
 
 from __future__ import annotations
@@ -15,8 +20,10 @@ from typing import Any
 
 import anyio.to_thread
 from starlette.responses import Response
+from starlette.types import Scope
 
-from alveary._errors import AlvearyError
+from alveary._errors import AlvearyError, NotFound
+from alveary.api._access import Credentials, presented_key
 from alveary.api._answers import Answer, AnswerCache, PlanCache
 from alveary.api._encode import encode
 from alveary.api._etag import etag_for, matches
@@ -57,6 +64,7 @@ class Service:
         self.settings = settings
         self.limits = settings.limits
         self.catalog = catalog if catalog is not None else Catalog(settings.sources())
+        self.keys = settings.key_ring()
         self.cache = ChunkCache(settings.cache_bytes)
         self.answers = AnswerCache(
             settings.answer_cache_bytes, max(settings.answer_cache_bytes // 16, 1)
@@ -93,20 +101,50 @@ class Service:
                 if flag:
                     log.info("cube %s: picked up a new version", cube_id)
 
-    def headers(self, etag: str) -> dict[str, str]:
+    def headers(self, etag: str, cube_id: str) -> dict[str, str]:
+        """Caching headers of an answer; a private cube's answers stay out of shared caches."""
+        if cube_id in self.keys.private:
+            return {
+                "ETag": etag,
+                "Cache-Control": f"private, max-age={self.settings.max_age}",
+                "Vary": "Accept, Authorization, X-API-Key",
+            }
         return {"ETag": etag, "Cache-Control": self.cache_control, "Vary": "Accept"}
 
-    def cube(self, cube_id: str) -> ServedCube:
-        """The cube a request names (:class:`NotFound` if there is none to see)."""
-        return self.catalog.get(cube_id)
+    # -- access: the one seam between a request and a cube ---------------------------
 
-    def cube_source(self, cube_id: str) -> CubeSource:
-        """The configuration of a cube a request names (:class:`NotFound` as :meth:`cube`)."""
+    async def credentials(self, scope: Scope) -> Credentials:
+        """What the request's API key proves (checked once per request and key)."""
+        found: Credentials | None = scope.get("alveary.credentials")
+        if found is not None:
+            return found
+        key = presented_key(scope)
+        found = self.keys.known(key)
+        if found is None:  # a key not seen before: the slow hash, off the event loop
+            found = await anyio.to_thread.run_sync(self.keys.check, key)
+        scope["alveary.credentials"] = found
+        return found
+
+    def readable(self, cube_id: str, credentials: Credentials) -> bool:
+        """Whether the credentials may read this cube (it need not exist)."""
+        return self.keys.readable(cube_id, credentials)
+
+    def source_for(self, cube_id: str, credentials: Credentials) -> CubeSource:
+        """A cube's configuration; :class:`NotFound` if unknown or not readable."""
+        if not self.keys.readable(cube_id, credentials):
+            raise NotFound("cube", cube_id)
         return self.catalog.source(cube_id)
 
-    def visible_cubes(self) -> list[tuple[CubeSource, ServedCube | None]]:
-        """(source, cube or None) of every cube a request may list."""
-        return self.catalog.cubes()
+    def cube_for(self, cube_id: str, credentials: Credentials) -> ServedCube:
+        """The open cube; :class:`NotFound` exactly as for an unknown id if these
+        credentials may not read it, :class:`StoreUnavailable` if it is not open yet."""
+        if not self.keys.readable(cube_id, credentials):
+            raise NotFound("cube", cube_id)
+        return self.catalog.get(cube_id)
+
+    def cubes_for(self, credentials: Credentials) -> list[tuple[CubeSource, ServedCube | None]]:
+        """(source, cube or None) of every configured cube these credentials may read."""
+        return [(s, c) for s, c in self.catalog.cubes() if self.keys.readable(s.id, credentials)]
 
     def current_version(self, cube_id: str) -> str | None:
         """The version a cube serves now (None if it is not open)."""
@@ -122,16 +160,20 @@ class Service:
         fmt: str,
         if_none_match: str | None,
         *,
+        credentials: Credentials,
         geometry: dict[str, Any] | None = None,
         key: str | None = None,
     ) -> Response:
         """Run one cube query end to end and build the HTTP response.
 
-        ``key`` is the raw request's cache key (GET requests), for the answer front.
+        ``credentials`` are the request's (:meth:`credentials`): a cube they may not read
+        is not found. ``key`` is the raw request's cache key (GET requests), for the
+        answer front.
         """
+        self.cube_for(cube_id, credentials)
         resolved = resolve(self.catalog, cube_id, query)
         etag = etag_for(resolved.key, fmt)
-        headers = self.headers(etag)
+        headers = self.headers(etag, cube_id)
         if matches(if_none_match, etag):
             return Response(status_code=304, headers=headers)
         caching = self.answers.max_bytes > 0
@@ -162,8 +204,9 @@ class Service:
     ) -> Response:
         """An answer made by ``make()`` (body, media type) unless the client or the answer
         cache already holds it: 304 on a matching If-None-Match, else the cached body,
-        else made now and kept under its ETag (and the raw request ``key``)."""
-        headers = self.headers(etag)
+        else made now and kept under its ETag (and the raw request ``key``). The caller
+        has checked access to the cube (:meth:`cube_for`)."""
+        headers = self.headers(etag, cube_id)
         if matches(if_none_match, etag):
             return Response(status_code=304, headers=headers)
         caching = self.answers.max_bytes > 0

@@ -10,12 +10,20 @@ The TOML file::
     id = "rainfall"                      # the name in request paths
     url = "s3://bucket/cubes/rainfall"   # or a local path
     title = "Rainfall, invented valley"  # optional
+    public = false                       # optional: only listed API keys may read it
     [cubes.storage_options]              # optional, passed to the store client only
     endpoint_url = "http://127.0.0.1:9000"
+    [cubes.keys]                         # optional: key id -> salted hash of an API key
+    3f9a1c0d7e2b = "scrypt:14:8:1:...:..."
+
+Keys of private cubes may also come from the keys file (``api_keys_file``), see
+:mod:`alveary.api._access`.
 """
 
 from __future__ import annotations
 
+import logging
+import math
 import tomllib
 from collections.abc import Mapping
 from pathlib import Path
@@ -32,10 +40,13 @@ from pydantic import (
 from pydantic_settings import BaseSettings, NoDecode, SettingsConfigDict
 
 from alveary._errors import InvalidInput
+from alveary.api._access import KeyRing, read_keys_file
 from alveary.cube import check_cube_id, default_store_root
 from alveary.query import CubeSource, Limits
 
 __all__ = ["CubeConfig", "Settings", "default_store", "load_settings", "scan_store"]
+
+log = logging.getLogger("alveary.api")
 
 
 def default_store() -> Path:
@@ -52,8 +63,16 @@ class CubeConfig(BaseModel):
     url: str
     title: str | None = None
     storage_options: dict[str, Any] | None = None
+    public: bool = True
+    keys: dict[str, str] = Field(default_factory=dict)
 
     _id = field_validator("id")(check_cube_id)
+
+    @model_validator(mode="after")
+    def _keys_only_if_private(self) -> CubeConfig:
+        if self.keys and self.public:
+            raise InvalidInput(f"cubes.{self.id}.keys", "set", "keys only with public = false")
+        return self
 
     def source(self) -> CubeSource:
         return CubeSource(self.id, self.url, self.title, self.storage_options)
@@ -112,6 +131,23 @@ class Settings(BaseSettings):
     max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
     max_body_bytes: int = Field(8 * 2**20, ge=1024)
 
+    rate_limit_rps: float = Field(
+        0.0, ge=0, description="Requests per second per client (API key or address); 0: off."
+    )
+    rate_limit_burst: int = Field(
+        0, ge=0, description="Requests a client may send at once; 0: twice rate_limit_rps."
+    )
+    rate_limit_storage: str = Field(
+        "memory://", description="Where rate counters live (a limits storage URI)."
+    )
+    rate_limit_client_header: str | None = Field(
+        None, description="Header a trusted proxy sets with the client address (last entry)."
+    )
+
+    api_keys_file: Path | None = Field(
+        None, description="TOML file of API key hashes of private cubes (<cube>.<key id> = hash)."
+    )
+
     _split_origins = field_validator("cors_origins", mode="before")(_split)
 
     @model_validator(mode="after")
@@ -130,6 +166,27 @@ class Settings(BaseSettings):
             max_cells=self.max_cells,
             max_read_bytes=self.max_read_bytes,
         )
+
+    @property
+    def burst(self) -> int:
+        """The rate limit's burst (explicit, or twice the rate)."""
+        return self.rate_limit_burst or max(math.ceil(2 * self.rate_limit_rps), 1)
+
+    def key_ring(self) -> KeyRing:
+        """The private cubes and the keys that may read them (cube list and keys file)."""
+        private = {c.id for c in self.cubes if not c.public}
+        keys: dict[str, dict[str, str]] = {c.id: dict(c.keys) for c in self.cubes if c.keys}
+        if self.api_keys_file is not None:
+            configured = {c.id for c in self.cubes}
+            for cube_id, listed in read_keys_file(self.api_keys_file).items():
+                if cube_id not in configured:
+                    log.warning("API keys file lists keys of cube %r, which is not served", cube_id)
+                    continue
+                keys.setdefault(cube_id, {}).update(listed)
+        ring = KeyRing(private, keys)
+        for cube_id in sorted(private - set(keys)):
+            log.warning("private cube %r has no API keys: nobody can read it", cube_id)
+        return ring
 
     def store_dir(self) -> Path:
         """The local directory whose cubes are served when no TOML file is given."""

@@ -10,6 +10,7 @@ from typing import Annotated, Literal
 
 from fastapi import Depends, Header, Path, Query, Request
 
+from alveary.api._access import Credentials
 from alveary.api._encode import negotiate
 from alveary.api._service import Service
 from alveary.grid import MAX_LEVEL
@@ -18,6 +19,7 @@ from alveary.query import Selection, parse_datetime, parse_stats, parse_vars
 __all__ = [
     "AcceptHeader",
     "BboxParam",
+    "CredentialsDep",
     "CubeFormat",
     "CubeId",
     "FormatParam",
@@ -44,6 +46,15 @@ async def get_service(request: Request) -> Service:
 
 
 ServiceDep = Annotated[Service, Depends(get_service)]
+
+
+async def get_credentials(request: Request) -> Credentials:
+    """What the request's API key proves; hand it to Service.cube_for / cubes_for."""
+    service: Service = request.app.state.service
+    return await service.credentials(request.scope)
+
+
+CredentialsDep = Annotated[Credentials, Depends(get_credentials)]
 
 CubeId = Annotated[
     str,

@@ -8,7 +8,7 @@ import sys
 from typing import Any
 
 from alveary.cube import list_versions, rollback
-from alveary.ingest import build_demo, ingest
+from alveary.ingest import demo_built, demo_url, ingest, publish_demo
 
 __all__ = ["register"]
 
@@ -152,7 +152,9 @@ def _rollback(args: argparse.Namespace) -> int:
 
 
 def _build_demo(args: argparse.Namespace) -> int:
-    url = build_demo(args.store, force=args.force, progress=sys.stderr.isatty())
-    summary = getattr(build_demo, "last_summary", None)
-    print(summary.text() if summary is not None else f"demo cube already built at {url}")
+    url = demo_url(args.store)
+    if not args.force and demo_built(url):
+        print(f"demo cube already built at {url}")
+        return 0
+    print(publish_demo(url, progress=sys.stderr.isatty()).text())
     return 0

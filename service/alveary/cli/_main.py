@@ -6,7 +6,7 @@ import argparse
 import sys
 
 from alveary import AlvearyError, __version__
-from alveary.cli import _ingest, _serve, _zone
+from alveary.cli import _ingest, _keys, _serve, _zone
 
 __all__ = ["build_parser", "main"]
 
@@ -21,6 +21,7 @@ def build_parser() -> argparse.ArgumentParser:
     _zone.register(subparsers)
     _ingest.register(subparsers)
     _serve.register(subparsers)
+    _keys.register(subparsers)
     return parser
 
 

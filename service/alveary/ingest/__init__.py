@@ -9,7 +9,7 @@ See ``service/docs/ingest.md``.
 """
 
 from alveary.ingest._build import IngestSummary, ingest
-from alveary.ingest._demo import build_demo, demo_url
+from alveary.ingest._demo import build_demo, demo_built, demo_url, publish_demo
 from alveary.ingest._weights import aggregate_children, child_weights, descendant_weights
 
 __all__ = [
@@ -17,7 +17,9 @@ __all__ = [
     "aggregate_children",
     "build_demo",
     "child_weights",
+    "demo_built",
     "demo_url",
     "descendant_weights",
     "ingest",
+    "publish_demo",
 ]

@@ -16,14 +16,24 @@ from __future__ import annotations
 
 import tempfile
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 from alveary.cube import default_store_root
 
-__all__ = ["DEMO_CUBE_ID", "build_demo", "demo_url", "write_demo_sources"]
+if TYPE_CHECKING:
+    from alveary.ingest._build import IngestSummary
+
+__all__ = [
+    "DEMO_CUBE_ID",
+    "build_demo",
+    "demo_built",
+    "demo_url",
+    "publish_demo",
+    "write_demo_sources",
+]
 
 DEMO_CUBE_ID = "velmora-irrigation"
 DEMO_LEVEL = 14
@@ -158,26 +168,21 @@ def write_demo_sources(directory: str | Path, days: int = 365, seed: int = 7) ->
     return paths
 
 
-def build_demo(
-    store: str | Path | None = None,
+def publish_demo(
+    url: str,
     *,
-    force: bool = False,
     days: int = 365,
     progress: bool = False,
     scheduler: str | None = None,
-) -> str:
-    """Build the demo cube on the embedded store (if missing, or always with ``force``).
-
-    Returns the cube's URL (a local path), ``<store>/velmora-irrigation``.
-    """
+) -> IngestSummary:
+    """Write the invented district's sources to a temporary directory and publish the
+    demo cube from them at ``url`` (any store URL: a local path, ``s3://...``), with the
+    demo's settings: area mean to level 14, pyramid down to level 9."""
     from alveary.ingest._build import ingest
 
-    url = demo_url(store)
-    if not force and (Path(url) / "current.json").exists():
-        return url
     with tempfile.TemporaryDirectory(prefix="alveary-demo-") as tmp:
         paths = write_demo_sources(tmp, days=days)
-        summary = ingest(
+        return ingest(
             paths,
             url,
             DEMO_LEVEL,
@@ -195,5 +200,26 @@ def build_demo(
             progress=progress,
             replace=True,
         )
-    build_demo.last_summary = summary  # type: ignore[attr-defined]
+
+
+def build_demo(
+    store: str | Path | None = None,
+    *,
+    force: bool = False,
+    days: int = 365,
+    progress: bool = False,
+    scheduler: str | None = None,
+) -> str:
+    """Build the demo cube on the embedded store (if missing, or always with ``force``).
+
+    Returns the cube's URL (a local path), ``<store>/velmora-irrigation``.
+    """
+    url = demo_url(store)
+    if force or not demo_built(url):
+        publish_demo(url, days=days, progress=progress, scheduler=scheduler)
     return url
+
+
+def demo_built(url: str) -> bool:
+    """Whether a demo cube is published at the local path ``url``."""
+    return (Path(url) / "current.json").exists()
