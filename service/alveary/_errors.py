@@ -127,11 +127,21 @@ class RateLimited(AlvearyError):
 
 
 class StoreUnavailable(AlvearyError, OSError):
-    """The object store behind a cube cannot be reached."""
+    """The object store behind a cube cannot be reached.
+
+    ``cube`` and ``key`` name the cube and the object being read, when known (for logs
+    and readiness checks; never shown to a client).
+    """
+
+    cube: str | None = None
+    key: str | None = None
 
 
 class ChunkDecodeError(AlvearyError, OSError):
-    """A stored chunk exists but cannot be decoded."""
+    """A stored chunk exists but cannot be decoded (``cube`` and ``key`` as above)."""
+
+    cube: str | None = None
+    key: str | None = None
 
 
 class DeadlineExceeded(AlvearyError, TimeoutError):

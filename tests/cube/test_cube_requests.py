@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from alveary import StoreUnavailable, grid
+from alveary import ChunkDecodeError, StoreUnavailable, grid
 from alveary.cube import ChunkShape, create_cube, is_checksum_error, open_cube
 
 LEVEL = 5
@@ -197,9 +197,10 @@ def test_a_flipped_byte_on_s3_fails_the_checksum(s3_server, appended):
     data = bytearray(client.get_object(Bucket=bucket, Key=key)["Body"].read())
     data[5] ^= 0x01
     client.put_object(Bucket=bucket, Key=key, Body=bytes(data))
-    with pytest.raises(ValueError) as err:
+    with pytest.raises(ChunkDecodeError, match="fails its checksum") as err:
         cube.read("x", zones[:1], TIMES[60], TIMES[60])
-    assert is_checksum_error(err.value)
+    assert is_checksum_error(err.value)  # zarr's crc32c codec found it (the cause)
+    assert err.value.key == key.removeprefix("grow/") and err.value.cube == "grow"
 
 
 def test_retention_on_s3_deletes_only_unreferenced_objects(s3_server):

@@ -3,11 +3,24 @@
 All four are built from the same arrays, so a query gives the same numbers in every format.
 Missing data is ``null`` in JSON and GeoJSON, a null in Arrow and an empty field in CSV.
 The long (Arrow, CSV) form has one row per zone and time step, zone-major.
+
+Zone answers are encoded block by block (:func:`encode_blocks`): a block of zones at a
+time, so that a large answer can be sent as it is made and the memory it takes while
+encoding is that of one block, whatever the size of the answer. Joining the blocks gives
+exactly the document :func:`encode` returns.
+
+Numbers are printed as the shortest decimal that reads back to the stored value: a
+variable stored as float32 as the shortest float32 decimal (``296.18756``), a packed
+integer variable (``stored * scale_factor + add_offset``) with the fewest decimals that
+give back the stored integer (``0.2552``), anything else as the shortest float64 decimal.
+Arrow keeps the stored type (float32 stays float32; packed and float64 are float64).
 """
 
 from __future__ import annotations
 
 import io
+import math
+from collections.abc import Iterator
 from typing import Any
 
 import numpy as np
@@ -16,9 +29,9 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from alveary import grid
-from alveary.query import StatsResult, ZoneResult, format_time
+from alveary.query import ResultVariable, StatsResult, ZoneResult, format_time
 
-__all__ = ["FORMATS", "MEDIA_TYPES", "encode", "negotiate"]
+__all__ = ["BLOCK_ROWS", "FORMATS", "MEDIA_TYPES", "encode", "encode_blocks", "negotiate"]
 
 #: Format name -> media type.
 FORMATS: dict[str, str] = {
@@ -34,6 +47,9 @@ MEDIA_TYPES: dict[str, str] = {
     "text/csv": "csv",
 }
 _JSON_OPTS = orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS
+
+#: (zone, time) rows encoded per block (a block holds whole zones: at least one).
+BLOCK_ROWS = 32_768
 
 
 def negotiate(f: str | None, accept: str | None, allowed: tuple[str, ...]) -> str:
@@ -70,6 +86,59 @@ def negotiate(f: str | None, accept: str | None, allowed: tuple[str, ...]) -> st
     return best or allowed[0]
 
 
+# -- numbers ---------------------------------------------------------------------------
+def _packed(info: ResultVariable) -> bool:
+    return info.scale_factor is not None or info.add_offset is not None
+
+
+def printable(values: np.ndarray, info: ResultVariable) -> np.ndarray:
+    """Values whose shortest ``repr`` is the shortest decimal that reads back to what is
+    stored: float32 for a float32 variable, packed values rounded to the fewest decimals
+    that give back the stored integers, float64 otherwise. NaN stays NaN.
+
+    >>> printable(np.array([296.18756103515625]), ResultVariable("t", dtype="float32"))
+    array([296.18756], dtype=float32)
+    >>> sm = ResultVariable("sm", dtype="int16", scale_factor=1e-4)
+    >>> printable(np.array([2552 * 1e-4, np.nan]), sm).tolist()
+    [0.2552, nan]
+    """
+    a = np.asarray(values, dtype=np.float64)
+    if _packed(info):
+        return _round_packed(a, info)
+    if info.dtype == "float32":
+        return a.astype(np.float32)
+    return a
+
+
+def _round_packed(a: np.ndarray, info: ResultVariable) -> np.ndarray:
+    scale = 1.0 if info.scale_factor is None else float(info.scale_factor)
+    offset = 0.0 if info.add_offset is None else float(info.add_offset)
+    if scale == 0.0 or not math.isfinite(scale):
+        return a
+    with np.errstate(invalid="ignore"):
+        stored = np.round((a - offset) / scale)
+        first = max(0, math.ceil(-math.log10(abs(scale))))
+        for decimals in range(first, 18):
+            out = np.round(a, decimals)
+            back = np.round((out - offset) / scale)
+            if np.array_equal(back, stored, equal_nan=True):
+                return out
+    return a
+
+
+def _arrow_type(info: ResultVariable) -> pa.DataType:
+    return pa.float32() if info.dtype == "float32" and not _packed(info) else pa.float64()
+
+
+def _masked(a: np.ndarray, type_: pa.DataType | None = None) -> pa.Array:
+    a = np.ascontiguousarray(a)
+    if type_ is None or type_ == pa.float64():
+        a = a.astype(np.float64, copy=False)
+        return pa.array(a, mask=np.isnan(a), type=pa.float64())
+    return pa.array(a.astype(np.float32), mask=np.isnan(a), type=pa.float32())
+
+
+# -- shared pieces ---------------------------------------------------------------------
 def _variables_json(result: ZoneResult | StatsResult) -> dict[str, dict[str, str]]:
     return {v.name: {"units": v.units, "long_name": v.long_name} for v in result.variables.values()}
 
@@ -84,8 +153,15 @@ def _header(result: ZoneResult | StatsResult) -> dict[str, Any]:
     }
 
 
-def _zone_columns(result: ZoneResult) -> dict[str, list[Any]]:
-    zones = result.zones
+def _blocks(result: ZoneResult, block_rows: int) -> Iterator[slice]:
+    n = int(result.zones.size)
+    per = max(1, block_rows // max(1, int(result.times.size)))
+    for start in range(0, n, per):
+        yield slice(start, min(n, start + per))
+
+
+def _zone_columns(result: ZoneResult, sel: slice) -> dict[str, list[Any]]:
+    zones = result.zones[sel]
     lat, lon = grid.zone_to_point(zones) if zones.size else (np.zeros(0), np.zeros(0))
     cols: dict[str, list[Any]] = {
         "zone": zones.tolist(),
@@ -94,52 +170,68 @@ def _zone_columns(result: ZoneResult) -> dict[str, list[Any]]:
         "lon": np.asarray(lon).tolist(),
     }
     for name, values in result.extra.items():
-        cols[name] = values.tolist()
+        cols[name] = values[sel].tolist()
     return cols
 
 
-def _values(result: ZoneResult) -> dict[str, list[list[float]]]:
-    return {v: a.T.tolist() for v, a in result.values.items()}
+def _series(result: ZoneResult, sel: slice) -> dict[str, np.ndarray]:
+    """variable -> (zones in block, time) C-contiguous, in the printable type."""
+    out = {}
+    for name, a in result.values.items():
+        info = result.variables.get(name) or ResultVariable(name)
+        out[name] = np.ascontiguousarray(printable(a[:, sel], info).T)
+    return out
 
 
-def _zone_json(result: ZoneResult) -> bytes:
-    cols = _zone_columns(result)
-    values = _values(result)
+def _join(body: bytes, first: bool) -> bytes:
+    return body if first or not body else b"," + body
+
+
+# -- JSON and GeoJSON ------------------------------------------------------------------
+def _json_rows(result: ZoneResult, sel: slice) -> bytes:
+    cols = _zone_columns(result, sel)
+    series = _series(result, sel)
     names = list(cols)
-    vnames = list(values)
     rows = []
-    for n in range(result.zones.size):
-        row = {k: cols[k][n] for k in names}
-        row["values"] = {v: values[v][n] for v in vnames}
+    for n in range(sel.stop - sel.start):
+        row: dict[str, Any] = {k: cols[k][n] for k in names}
+        row["values"] = {v: a[n] for v, a in series.items()}
         rows.append(row)
-    body = _header(result)
-    body["kind"] = result.kind
-    body["zones"] = rows
-    return orjson.dumps(body, option=_JSON_OPTS)
+    return orjson.dumps(rows, option=_JSON_OPTS)[1:-1]
 
 
-def _zone_geojson(result: ZoneResult) -> bytes:
-    cols = _zone_columns(result)
-    values = _values(result)
-    geometries = grid.zone_to_geojson(np.atleast_1d(result.zones))
+def _geojson_rows(result: ZoneResult, sel: slice) -> bytes:
+    cols = _zone_columns(result, sel)
+    series = _series(result, sel)
+    geometries = grid.zone_to_geojson(np.atleast_1d(result.zones[sel]))
     names = list(cols)
     features = []
-    for n in range(result.zones.size):
-        props = {k: cols[k][n] for k in names}
-        for v, series in values.items():
-            props[v] = series[n]
-        features.append(
-            {
-                "type": "Feature",
-                "id": cols["zone"][n],
-                "geometry": geometries[n],
-                "properties": props,
-            }
-        )
-    body: dict[str, Any] = {"type": "FeatureCollection", "features": features}
-    body.update(_header(result))
-    body["kind"] = result.kind
-    return orjson.dumps(body, option=_JSON_OPTS)
+    for n in range(sel.stop - sel.start):
+        props: dict[str, Any] = {k: cols[k][n] for k in names}
+        for v, a in series.items():
+            props[v] = a[n]
+        feature = {"type": "Feature", "id": cols["zone"][n], "geometry": geometries[n]}
+        feature["properties"] = props
+        features.append(feature)
+    return orjson.dumps(features, option=_JSON_OPTS)[1:-1]
+
+
+def _zone_json_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
+    head = _header(result)
+    head["kind"] = result.kind
+    yield orjson.dumps(head, option=_JSON_OPTS)[:-1] + b',"zones":['
+    for k, sel in enumerate(_blocks(result, block_rows)):
+        yield _join(_json_rows(result, sel), k == 0)
+    yield b"]}"
+
+
+def _zone_geojson_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
+    yield b'{"type":"FeatureCollection","features":['
+    for k, sel in enumerate(_blocks(result, block_rows)):
+        yield _join(_geojson_rows(result, sel), k == 0)
+    tail = _header(result)
+    tail["kind"] = result.kind
+    yield b"]," + orjson.dumps(tail, option=_JSON_OPTS)[1:]
 
 
 def _stats_body(result: StatsResult) -> dict[str, Any]:
@@ -159,30 +251,93 @@ def _stats_geojson(result: StatsResult, geometry: dict[str, Any] | None) -> byte
     return orjson.dumps(feature, option=_JSON_OPTS)
 
 
-def _masked(a: np.ndarray) -> pa.Array:
-    a = np.ascontiguousarray(a, dtype=np.float64)
-    return pa.array(a, mask=np.isnan(a))
-
-
-def _zone_table(result: ZoneResult) -> pa.Table:
-    n, t = result.zones.size, result.times.size
-    time = result.times.astype("datetime64[s]")
-    cols: dict[str, pa.Array] = {
-        "zone": pa.array(np.repeat(result.zones.astype(np.uint64), t), pa.uint64()),
-        "time": pa.array(np.tile(time, n), pa.timestamp("s", tz="UTC")),
-    }
+# -- Arrow and CSV (long form) ---------------------------------------------------------
+def _zone_schema(result: ZoneResult) -> pa.Schema:
     fields = [pa.field("zone", pa.uint64()), pa.field("time", pa.timestamp("s", tz="UTC"))]
     for name, info in result.variables.items():
-        cols[name] = _masked(result.values[name].T.reshape(-1))
         meta = {"units": info.units, "long_name": info.long_name}
-        fields.append(pa.field(name, pa.float64(), metadata=meta))
+        fields.append(pa.field(name, _arrow_type(info), metadata=meta))
     for name, values in result.extra.items():
-        arr = pa.array(np.repeat(values, t))
-        cols[name] = arr
         units = {"units": "m"} if name == "distance_m" else None
-        fields.append(pa.field(name, arr.type, metadata=units))
-    schema = pa.schema(fields, metadata=_schema_meta(result))
-    return pa.Table.from_arrays(list(cols.values()), schema=schema)
+        fields.append(pa.field(name, pa.from_numpy_dtype(values.dtype), metadata=units))
+    return pa.schema(fields, metadata=_schema_meta(result))
+
+
+def _zone_batch(result: ZoneResult, sel: slice, schema: pa.Schema) -> pa.RecordBatch:
+    zones = result.zones[sel]
+    n, t = zones.size, result.times.size
+    time = result.times.astype("datetime64[s]")
+    cols: list[pa.Array] = [
+        pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64()),
+        pa.array(np.tile(time, n), pa.timestamp("s", tz="UTC")),
+    ]
+    for name, info in result.variables.items():
+        block = result.values[name][:, sel].T.reshape(-1)
+        cols.append(_masked(block, _arrow_type(info)))
+    for values in result.extra.values():
+        cols.append(pa.array(np.repeat(values[sel], t)))
+    return pa.RecordBatch.from_arrays(cols, schema=schema)
+
+
+def _zone_arrow_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
+    schema = _zone_schema(result)
+    sink = io.BytesIO()
+    with pa.ipc.new_stream(sink, schema) as writer:
+        for sel in _blocks(result, block_rows):
+            writer.write_batch(_zone_batch(result, sel, schema))
+            yield _drain(sink)
+    yield _drain(sink)
+
+
+def _drain(sink: io.BytesIO) -> bytes:
+    data = sink.getvalue()
+    sink.seek(0)
+    sink.truncate()
+    return data
+
+
+def _time_text(times: np.ndarray) -> np.ndarray:
+    text = np.datetime_as_string(times.astype("datetime64[s]"), unit="s")
+    return np.char.add(text.astype(str), "Z")
+
+
+def _zone_csv_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
+    t = int(result.times.size)
+    times = pa.array(_time_text(result.times), pa.string())
+    names = ["zone", "zone_text", "lat", "lon", "time"]
+    names += [*result.variables, *result.extra]
+    options = pacsv.WriteOptions(quoting_style="needed", include_header=True)
+    if result.zones.size == 0:
+        empty = [pa.array([], pa.string()) for _ in names]
+        yield _csv_bytes(pa.Table.from_arrays(empty, names=names), options)
+        return
+    for k, sel in enumerate(_blocks(result, block_rows)):
+        zones = result.zones[sel]
+        n = zones.size
+        lat, lon = grid.zone_to_point(zones)
+        cols: list[pa.Array] = [
+            pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64()),
+            pa.array(np.repeat(np.asarray(grid.zone_to_text(zones)), t).tolist(), pa.string()),
+            pa.array(np.repeat(np.asarray(lat, dtype=np.float64), t)),
+            pa.array(np.repeat(np.asarray(lon, dtype=np.float64), t)),
+            pa.chunked_array([times] * n).combine_chunks() if n else times[:0],
+        ]
+        for name, info in result.variables.items():
+            block = printable(result.values[name][:, sel], info).T.reshape(-1)
+            cols.append(_masked(block, _arrow_type(info)))
+        for values in result.extra.values():
+            cols.append(pa.array(np.repeat(values[sel], t)))
+        table = pa.Table.from_arrays(cols, names=names)
+        yield _csv_bytes(table, options if k == 0 else _NO_HEADER)
+
+
+_NO_HEADER = pacsv.WriteOptions(quoting_style="needed", include_header=False)
+
+
+def _csv_bytes(table: pa.Table, options: pacsv.WriteOptions) -> bytes:
+    out = io.BytesIO()
+    pacsv.write_csv(table, out, options)
+    return out.getvalue()
 
 
 def _stats_table(result: StatsResult) -> pa.Table:
@@ -228,31 +383,55 @@ def _csv(table: pa.Table) -> bytes:
     for i, field in enumerate(table.schema):
         col = table.column(i)
         if pa.types.is_timestamp(field.type):
-            text = np.datetime_as_string(col.to_numpy().astype("datetime64[s]"), unit="s")
-            col = pa.array(np.char.add(text.astype(str), "Z"), pa.string())
+            col = pa.array(_time_text(col.to_numpy()), pa.string())
         cols.append(col)
     plain = pa.Table.from_arrays(cols, names=table.column_names)
-    out = io.BytesIO()
-    pacsv.write_csv(plain, out, pacsv.WriteOptions(quoting_style="needed"))
-    return out.getvalue()
+    return _csv_bytes(plain, pacsv.WriteOptions(quoting_style="needed"))
+
+
+# -- entry points ----------------------------------------------------------------------
+def encode_blocks(
+    result: ZoneResult | StatsResult,
+    fmt: str,
+    *,
+    geometry: dict[str, Any] | None = None,
+    block_rows: int = BLOCK_ROWS,
+) -> tuple[Iterator[bytes], str]:
+    """The encoded answer as an iterator of byte blocks, and its media type.
+
+    Zone answers are encoded ``block_rows`` (zone, time) rows at a time, lazily: each
+    block is made when the iterator is advanced. Statistics answers are one block.
+    """
+    if isinstance(result, StatsResult):
+        body, media = _encode_stats(result, fmt, geometry)
+        return iter((body,)), media
+    if fmt == "json":
+        return _zone_json_blocks(result, block_rows), FORMATS["json"]
+    if fmt == "geojson":
+        return _zone_geojson_blocks(result, block_rows), FORMATS["geojson"]
+    if fmt == "arrow":
+        return _zone_arrow_blocks(result, block_rows), FORMATS["arrow"]
+    return _zone_csv_blocks(result, block_rows), FORMATS["csv"]
+
+
+def _encode_stats(
+    result: StatsResult, fmt: str, geometry: dict[str, Any] | None
+) -> tuple[bytes, str]:
+    if fmt == "json":
+        return orjson.dumps(_stats_body(result), option=_JSON_OPTS), FORMATS["json"]
+    if fmt == "geojson":
+        return _stats_geojson(result, geometry), FORMATS["geojson"]
+    if fmt == "arrow":
+        return _arrow(_stats_table(result)), FORMATS["arrow"]
+    return _csv(_stats_table(result)), FORMATS["csv"]
 
 
 def encode(
     result: ZoneResult | StatsResult, fmt: str, *, geometry: dict[str, Any] | None = None
 ) -> tuple[bytes, str]:
-    """Encode a result; returns (body, media type).
+    """Encode a result whole; returns (body, media type).
 
     ``geometry`` is the request area, used as the Feature geometry of GeoJSON statistics.
     """
-    if fmt == "json":
-        if isinstance(result, StatsResult):
-            return orjson.dumps(_stats_body(result), option=_JSON_OPTS), FORMATS["json"]
-        return _zone_json(result), FORMATS["json"]
-    if fmt == "geojson":
-        if isinstance(result, StatsResult):
-            return _stats_geojson(result, geometry), FORMATS["geojson"]
-        return _zone_geojson(result), FORMATS["geojson"]
-    table = _stats_table(result) if isinstance(result, StatsResult) else _zone_table(result)
-    if fmt == "arrow":
-        return _arrow(table), FORMATS["arrow"]
-    return _csv(table), FORMATS["csv"]
+    blocks, media = encode_blocks(result, fmt, geometry=geometry)
+    return b"".join(blocks), media

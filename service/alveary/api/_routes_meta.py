@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import anyio.to_thread
 import orjson
 from fastapi import APIRouter
 from starlette.responses import Response
@@ -62,12 +61,12 @@ async def health() -> Response:
 @router.get(
     "/readyz",
     operation_id="ready",
-    summary="Readiness: every configured store can be reached",
+    summary="Readiness: every configured store can be reached and has what it should",
     response_model=Ready,
     responses={_NOT_READY: {"description": "A store cannot be reached.", "model": Ready}},
 )
 async def ready(service: ServiceDep, credentials: CredentialsDep) -> Response:
-    status = await anyio.to_thread.run_sync(service.ready)
+    status = await service.ready_async()
     ok = all(v is None for v in status.values())
     # Every store counts for readiness; only the cubes the caller may read are named.
     named = {k: v for k, v in status.items() if service.readable(k, credentials)}

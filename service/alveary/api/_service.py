@@ -15,19 +15,29 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import logging
-from collections.abc import Awaitable, Callable
+import time
+from collections.abc import AsyncIterator, Awaitable, Callable, Iterator
 from typing import Any
 
+import anyio
 import anyio.to_thread
-from starlette.responses import Response
+from starlette.responses import Response, StreamingResponse
 from starlette.types import Scope
 
-from alveary._errors import AlvearyError, NotFound
+from alveary._errors import (
+    AlvearyError,
+    ChunkDecodeError,
+    DeadlineExceeded,
+    NotFound,
+    StoreUnavailable,
+)
 from alveary.api._access import Credentials, presented_key
 from alveary.api._answers import Answer, AnswerCache, PlanCache
-from alveary.api._encode import encode
+from alveary.api._encode import encode, encode_blocks
 from alveary.api._etag import etag_for, matches
+from alveary.api._gate import Busy, CellGate
 from alveary.api._metrics import Metrics
+from alveary.api._problem import problem_response
 from alveary.api._settings import Settings
 from alveary.cube import ChunkCache
 from alveary.query import (
@@ -53,8 +63,14 @@ __all__ = ["Service"]
 log = logging.getLogger("alveary.api")
 
 # Answers with at most this many (zone, time) rows are encoded on the event loop; larger
-# ones in a worker thread so that one big answer does not stall small ones.
+# ones in a worker thread so that one big answer does not stall small ones; answers over
+# the setting stream_rows are sent block by block as they are encoded (chunked transfer), never
+# held whole, and not kept in the answer cache.
 _INLINE_ROWS = 2_000
+# Requests under this many cells never wait at the gate.
+_SMALL_CELLS = 20_000
+# Seconds /readyz may take; past it the answer is "not ready".
+READY_DEADLINE = 2.0
 
 
 class Service:
@@ -74,6 +90,10 @@ class Service:
         # pixel-to-zone maps of map tiles: another time step of a tile reuses its map
         self.pixels = PixelZoneCache(settings.pixel_cache_bytes)
         self.cache_control = f"public, max-age={settings.max_age}"
+        self.gate = CellGate(settings.max_cells_in_flight, settings.queue_wait, _SMALL_CELLS)
+        # cube id -> object key of the last object a read found missing or unreachable;
+        # /readyz fails until the store has it again.
+        self.faults: dict[str, str] = {}
         self._refresher: asyncio.Task[None] | None = None
 
     async def start(self) -> None:
@@ -183,8 +203,31 @@ class Service:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
         plan = await self._plan(resolved)
-        result = await execute(plan, self.cache, deadline=self.settings.deadline)
-        body, media = await self._encode(result, fmt, geometry)
+        try:
+            weight = await self.gate.acquire(_cells(plan))
+        except Busy:
+            return self.busy()
+        handed_over = False
+        try:
+            deadline_at = time.monotonic() + self.settings.deadline
+            try:
+                result = await execute(plan, self.cache, deadline=self.settings.deadline)
+            except (StoreUnavailable, ChunkDecodeError) as exc:
+                self.note_fault(cube_id, exc)
+                raise
+            rows = result.rows if isinstance(result, ZoneResult) else 0
+            if rows > self.settings.stream_rows:
+                blocks, media = encode_blocks(result, fmt, geometry=geometry)
+                # The first block is made before the status line goes out, so an error
+                # there is still an error response.
+                first = await _next_block(blocks, deadline_at)
+                stream = self._stream(first or b"", blocks, weight, deadline_at)
+                handed_over = True
+                return StreamingResponse(stream, media_type=media, headers=headers)
+            body, media = await self._encode(result, fmt, geometry, deadline_at)
+        finally:
+            if not handed_over:
+                self.gate.release(weight)
         if caching:
             operation = f"query_{query.op}"
             answer = Answer(cube_id, resolved.version, etag, body, media, operation)
@@ -215,10 +258,48 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(found.body, media_type=found.media_type, headers=headers)
-        body, media = await make()
+        try:
+            body, media = await make()
+        except (StoreUnavailable, ChunkDecodeError) as exc:
+            self.note_fault(cube_id, exc)
+            raise
         if caching:
             self.answers.put_answer(Answer(cube_id, version, etag, body, media, operation), key)
         return Response(body, media_type=media, headers=headers)
+
+    def busy(self) -> Response:
+        """503 for a request refused at the gate (too much large work in flight)."""
+        return problem_response(
+            503,
+            "Service busy",
+            "Too many large requests are being answered; retry later.",
+            headers={"Retry-After": str(self.settings.retry_after)},
+        )
+
+    async def _stream(
+        self, first: bytes, blocks: Iterator[bytes], weight: int, deadline_at: float
+    ) -> AsyncIterator[bytes]:
+        """The body of a streamed answer; the gate is released when it ends, however.
+
+        Past the deadline the stream stops without its last chunk, so the client sees a
+        broken transfer, never a short answer that looks whole.
+        """
+        try:
+            yield first
+            while True:
+                block = await _next_block(blocks, deadline_at)
+                if not block:
+                    if block is None:
+                        return
+                    continue
+                yield block
+        finally:
+            self.gate.release(weight)
+
+    def note_fault(self, cube_id: str, exc: StoreUnavailable | ChunkDecodeError) -> None:
+        """Remember an object the store should have but did not give (for /readyz)."""
+        if isinstance(exc, StoreUnavailable) and exc.key is not None:
+            self.faults[cube_id] = exc.key
 
     async def _plan(self, resolved: Resolved) -> Plan:
         """The query's plan: kept for repeats of area queries (they enumerate many zones);
@@ -235,15 +316,61 @@ class Service:
         return plan
 
     async def _encode(
-        self, result: ZoneResult | StatsResult, fmt: str, geometry: dict[str, Any] | None
+        self,
+        result: ZoneResult | StatsResult,
+        fmt: str,
+        geometry: dict[str, Any] | None,
+        deadline_at: float,
     ) -> tuple[bytes, str]:
-        """Small answers are encoded on the event loop, large ones in a worker thread."""
+        """Small answers are encoded on the event loop, large ones in a worker thread,
+        within the request's deadline."""
         rows = result.rows if isinstance(result, ZoneResult) else 0
         if rows <= _INLINE_ROWS:
             return encode(result, fmt, geometry=geometry)
-        return await anyio.to_thread.run_sync(lambda: encode(result, fmt, geometry=geometry))
+        with anyio.move_on_after(max(0.0, deadline_at - time.monotonic())) as scope:
+            return await anyio.to_thread.run_sync(
+                lambda: encode(result, fmt, geometry=geometry), abandon_on_cancel=True
+            )
+        assert scope.cancelled_caught
+        raise DeadlineExceeded("the request ran past its deadline while encoding")
 
     def ready(self) -> dict[str, str | None]:
-        """Check every store now (blocking: run off the loop); id -> None or error name."""
+        """Check every store now (blocking: run off the loop); id -> None or error name.
+
+        A cube whose reads lately found an object missing or unreachable stays not ready
+        until the store has that object again.
+        """
         self.catalog.refresh()
-        return self.catalog.status()
+        status = self.catalog.status()
+        for cube_id, key in list(self.faults.items()):
+            try:
+                cube = self.catalog.get(cube_id)
+                present = bool(cube.object_exists(key))  # type: ignore[attr-defined]
+            except AlvearyError:
+                present = False
+            if present:
+                self.faults.pop(cube_id, None)
+            elif status.get(cube_id) is None:
+                status[cube_id] = "StoreUnavailable"
+        return status
+
+    async def ready_async(self) -> dict[str, str | None]:
+        """:meth:`ready` within :data:`READY_DEADLINE` seconds (past it: every cube is
+        reported as unreachable)."""
+        with anyio.move_on_after(READY_DEADLINE):
+            return await anyio.to_thread.run_sync(self.ready, abandon_on_cancel=True)
+        return {cube_id: "DeadlineExceeded" for cube_id in self.catalog.ids()}
+
+
+def _cells(plan: Plan) -> int:
+    """(zone, time step, variable) cells a plan reads."""
+    r = plan.resolved
+    return int(plan.read_zones.size) * max(1, r.t1 - r.t0) * max(1, len(r.variables))
+
+
+async def _next_block(blocks: Iterator[bytes], deadline_at: float) -> bytes | None:
+    """The next encoded block (made in a worker thread), or None at the end."""
+    if time.monotonic() > deadline_at:
+        log.warning("a streamed answer ran past its deadline; the transfer is cut short")
+        raise DeadlineExceeded("the request ran past its deadline while encoding")
+    return await anyio.to_thread.run_sync(next, blocks, None)

@@ -119,6 +119,25 @@ class Settings(BaseSettings):
     refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
     deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")
     retry_after: int = Field(5, ge=1, description="Retry-After sent with 503, seconds.")
+    max_cells_in_flight: int = Field(
+        20_000_000,
+        ge=1,
+        description="Cells (zone x time step x variable) of large answers in flight per "
+        "process; more wait up to queue_wait seconds, then get 503.",
+    )
+    queue_wait: float = Field(2.0, ge=0, description="Seconds a large request may queue.")
+    stream_rows: int = Field(
+        100_000,
+        ge=1,
+        description="Answers over this many (zone, time) rows are streamed as they are encoded.",
+    )
+    header_timeout: float = Field(
+        10.0, gt=0, description="Seconds a client may take to send a request's headers."
+    )
+    keep_alive_timeout: float = Field(5.0, gt=0, description="Idle keep-alive, seconds.")
+    max_connections: int = Field(
+        1000, ge=1, description="Open connections per process; more are answered 503."
+    )
     cors_origins: Annotated[list[str], NoDecode] = Field(
         default_factory=list, description="CORS allow-list (comma-separated in the environment)."
     )

@@ -20,6 +20,7 @@ import uvicorn
 from fastapi import FastAPI
 
 from alveary.api import create_app, default_store, load_settings, scan_store
+from alveary.cli._http import HeaderDeadlineProtocol, configure_headers, log_config
 from alveary.ingest import build_demo
 
 __all__ = ["register", "serve", "serve_demo", "worker_app"]
@@ -44,6 +45,12 @@ _OPTIONS: tuple[tuple[str, str, type, str], ...] = (
     ("--max-points", "max_points", int, "limit: points per multi-point request"),
     ("--max-cells", "max_cells", int, "limit: time steps x zones per request"),
     ("--max-body-bytes", "max_body_bytes", int, "limit: request body size, bytes"),
+    ("--max-cells-in-flight", "max_cells_in_flight", int, "cells of large answers in flight"),
+    ("--queue-wait", "queue_wait", float, "seconds a large request may wait for room"),
+    ("--stream-rows", "stream_rows", int, "answers over this many rows are streamed"),
+    ("--header-timeout", "header_timeout", float, "seconds a client may take to send headers"),
+    ("--keep-alive-timeout", "keep_alive_timeout", float, "idle keep-alive, seconds"),
+    ("--max-connections", "max_connections", int, "open connections per worker (more: 503)"),
     ("--log-level", "log_level", str, "uvicorn log level (default info)"),
 )
 _KEYS = (*(dest for _, dest, _, _ in _OPTIONS), "cors_origins", "config", "store")
@@ -107,6 +114,7 @@ def serve(overrides: dict[str, Any]) -> int:
         where = settings.config or settings.store_dir()
         print(f"alveary serve: warning: no cubes found in {where}", file=sys.stderr)
     if settings.workers == 1:
+        configure_headers(settings.header_timeout)
         app: FastAPI | str = create_app(settings)
     else:
         os.environ[OPTIONS_ENV] = options_json(overrides)
@@ -118,7 +126,14 @@ def serve(overrides: dict[str, Any]) -> int:
         host=settings.host,
         port=settings.port,
         log_level=settings.log_level,
+        log_config=log_config(settings.log_level),
         proxy_headers=False,
+        # Slow or idle clients cannot hold the server: request headers within
+        # header_timeout, idle keep-alive connections closed after keep_alive_timeout,
+        # and at most max_connections connections (and tasks) per worker, more get 503.
+        http=HeaderDeadlineProtocol,
+        timeout_keep_alive=settings.keep_alive_timeout,  # type: ignore[arg-type]
+        limit_concurrency=settings.max_connections,
     )
     return 0
 
@@ -134,7 +149,9 @@ def options_json(overrides: dict[str, Any]) -> str:
 
 def worker_app() -> FastAPI:
     """uvicorn factory in a worker process: settings read as the parent read them."""
-    return create_app(load_settings(json.loads(os.environ.get(OPTIONS_ENV, "{}"))))
+    settings = load_settings(json.loads(os.environ.get(OPTIONS_ENV, "{}")))
+    configure_headers(settings.header_timeout)
+    return create_app(settings)
 
 
 def serve_demo(url: str | os.PathLike[str] | None, overrides: dict[str, Any]) -> int:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import asyncio
+import logging
 import threading
 from dataclasses import replace
 from typing import Any
@@ -13,8 +14,16 @@ import zarr.api.asynchronous
 from zarr.core.sync import _get_loop, sync
 
 from alveary import grid
-from alveary._errors import CubeFormatError, GridError, InvalidInput, NotFound
+from alveary._errors import (
+    ChunkDecodeError,
+    CubeFormatError,
+    GridError,
+    InvalidInput,
+    NotFound,
+    StoreUnavailable,
+)
 from alveary.cube._cache import ChunkCache, IOStats
+from alveary.cube._checksum import is_checksum_error
 from alveary.cube._layout import LevelLayout
 from alveary.cube._manifest import ResolvingStore
 from alveary.cube._meta import CubeMeta, VariableInfo
@@ -24,6 +33,48 @@ from alveary.cube._time import parse_time
 from alveary.cube._versions import POINTER_KEY, VERSIONS, read_manifest, read_pointer
 
 __all__ = ["Cube", "CubeVersion", "open_cube"]
+
+log = logging.getLogger("alveary.cube")
+
+# Exception classes of the store clients (by top-level module): the store cannot be reached.
+_NETWORK_MODULES = ("botocore", "aiobotocore", "aiohttp", "urllib3", "s3fs", "fsspec")
+
+
+def _is_network(exc: BaseException) -> bool:
+    if isinstance(exc, OSError | ConnectionError | TimeoutError):
+        return True
+    return any(c.__module__.split(".")[0] in _NETWORK_MODULES for c in type(exc).__mro__)
+
+
+def chunk_fault(exc: Exception, cube: str, version: str, key: str) -> Exception:
+    """The domain error for a failed chunk read, naming the cube and the object key, logged.
+
+    A chunk whose checksum fails, or whose bytes cannot be decoded, is a
+    :class:`ChunkDecodeError`; a store that cannot be reached, or that lacks an object the
+    manifest lists, a :class:`StoreUnavailable`. Anything else is returned unchanged.
+    """
+    err: StoreUnavailable | ChunkDecodeError
+    if isinstance(exc, StoreUnavailable | ChunkDecodeError):
+        err = exc
+    elif is_checksum_error(exc):
+        err = ChunkDecodeError(f"chunk {key!r} of cube {cube!r} fails its checksum")
+    elif _is_network(exc):
+        err = StoreUnavailable(f"chunk {key!r} of cube {cube!r} cannot be read: {exc}")
+    elif isinstance(exc, ValueError | RuntimeError):
+        err = ChunkDecodeError(f"chunk {key!r} of cube {cube!r} cannot be decoded: {exc}")
+    else:
+        return exc
+    err.cube, err.key = cube, key
+    log.error(
+        "store fault: cube=%s version=%s key=%s error=%s: %s",
+        cube,
+        version,
+        key,
+        type(err).__name__,
+        exc,
+    )
+    return err
+
 
 # Chunk fetches in flight per read; the store's own connection pool limits further.
 _MAX_INFLIGHT = 32
@@ -258,6 +309,15 @@ class CubeVersion(_Described):
             return await coro
         return await asyncio.wrap_future(asyncio.run_coroutine_threadsafe(coro, loop))
 
+    def object_key(self, cr: ChunkRead) -> str:
+        """The store key (relative to the cube's root) of the object holding a chunk."""
+        key = f"{VERSIONS}/{self.version}/{cr.key}"
+        store = self._group.store
+        if isinstance(store, ResolvingStore):
+            target, _ = store.resolve(key)
+            return target or key
+        return key
+
     async def _array(self, path: str) -> zarr.AsyncArray[Any]:
         arr = self._arrays.get(path)
         if arr is None:
@@ -279,9 +339,12 @@ class CubeVersion(_Described):
             key = (self.url, self.version, cr.array, cr.coords)
             data = cache.get(key) if cache is not None else None
             if data is None:
-                arr = await self._array(cr.array)
-                async with sem:
-                    data = np.asarray(await arr.getitem(cr.selection))
+                try:
+                    arr = await self._array(cr.array)
+                    async with sem:
+                        data = np.asarray(await arr.getitem(cr.selection))
+                except Exception as exc:
+                    raise chunk_fault(exc, self.id, self.version, self.object_key(cr)) from exc
                 if cache is not None:
                     cache.put(key, data)
             where: tuple[Any, ...] = (cr.in_time, *cr.cells)
@@ -351,6 +414,18 @@ class Cube(_Described):
         with self._lock:
             self._v = new
         return True
+
+    def object_exists(self, key: str) -> bool:
+        """Whether the store holds the object ``key`` (relative to the cube's root) now.
+
+        One request; a store that cannot be reached raises :class:`StoreUnavailable`.
+        """
+        try:
+            return bool(sync(self._store.exists(key)))
+        except StoreUnavailable:
+            raise
+        except Exception as exc:
+            raise StoreUnavailable(f"cannot check {key!r} in the cube store: {exc}") from exc
 
     def time_indices(self, start: Any = None, end: Any = None) -> slice:
         """:meth:`CubeVersion.time_indices` of the current version."""

@@ -73,12 +73,38 @@ def normalize_url(url: str | os.PathLike[str]) -> tuple[str, str]:
     return protocol, f"{protocol}://{rest}"
 
 
-def _fsspec_options(protocol: str, options: dict[str, Any] | None) -> dict[str, Any]:
+#: botocore settings of S3 readers unless the cube's storage options say otherwise: a store
+#: that cannot be reached fails a read at once (one attempt, a 1 s connect timeout)
+#: instead of after botocore's retries with back-off (about 5 s); the service answers 503
+#: with Retry-After and the client retries. Throttling answers are still retried by s3fs.
+S3_CLIENT_DEFAULTS: dict[str, Any] = {
+    "connect_timeout": 1.0,
+    "read_timeout": 20.0,
+    "retries": {"total_max_attempts": 1, "mode": "standard"},
+}
+
+
+def _fsspec_options(
+    protocol: str, options: dict[str, Any] | None, read_only: bool = True
+) -> dict[str, Any]:
+    """Store options with the defaults of the protocol filled in (writers keep botocore's
+    retries: a build should ride out a hiccup).
+
+    >>> opts = _fsspec_options("s3", {"config_kwargs": {"connect_timeout": 3}})
+    >>> opts["config_kwargs"]["connect_timeout"], opts["config_kwargs"]["retries"]
+    (3, {'total_max_attempts': 1, 'mode': 'standard'})
+    """
     opts = dict(options or {})
     if protocol == "s3":
         # s3fs sends a HEAD before every whole-object GET when max_concurrency > 1
         # (to decide on splitting it); one chunk must cost one GET, so read in one piece.
         opts.setdefault("max_concurrency", 1)
+        if not read_only:
+            return opts
+        config = dict(opts.get("config_kwargs") or {})
+        for key, value in S3_CLIENT_DEFAULTS.items():
+            config.setdefault(key, value)
+        opts["config_kwargs"] = config
     return opts
 
 
@@ -126,7 +152,7 @@ def open_store(
         else:
             store = FsspecStore.from_url(
                 location,
-                storage_options=_fsspec_options(protocol, storage_options),
+                storage_options=_fsspec_options(protocol, storage_options, read_only),
                 read_only=read_only,
             )
     except (ImportError, ValueError, TypeError) as exc:

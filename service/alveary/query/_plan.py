@@ -84,7 +84,17 @@ class Resolved:
 
     def variable_info(self) -> dict[str, ResultVariable]:
         meta = self.cube.variables
-        return {v: ResultVariable(v, meta[v].units, meta[v].long_name) for v in self.variables}
+        return {
+            v: ResultVariable(
+                v,
+                meta[v].units,
+                meta[v].long_name,
+                meta[v].dtype,
+                meta[v].scale_factor,
+                meta[v].add_offset,
+            )
+            for v in self.variables
+        }
 
 
 def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:

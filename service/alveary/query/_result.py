@@ -11,14 +11,17 @@ __all__ = ["ResultVariable", "StatsResult", "ZoneResult"]
 
 @dataclass(frozen=True)
 class ResultVariable:
-    """A variable of a result: its name and the CF attributes every format carries.
-
-    (The cube's :class:`alveary.cube.VariableInfo` also knows how it is stored.)
+    """A variable of a result: its name and the CF attributes every format carries,
+    and how it is stored (``dtype``, and ``scale_factor``/``add_offset`` if packed), so
+    encoders print no more digits than the stored values hold.
     """
 
     name: str
     units: str = ""
     long_name: str = ""
+    dtype: str = "float64"
+    scale_factor: float | None = None
+    add_offset: float | None = None
 
 
 @dataclass

@@ -1,0 +1,94 @@
+"""The HTTP/1.1 protocol the server runs: uvicorn's h11 protocol with a header deadline,
+and the logging set-up of ``alveary serve``.
+
+uvicorn closes idle keep-alive connections (``timeout_keep_alive``) and answers 503 over a
+connection cap (``limit_concurrency``), but has no limit on how long a client may take to
+send a request's headers: a client sending one header line every few seconds holds its
+connection (and a slot under the cap) for as long as it likes. :class:`HeaderDeadlineProtocol`
+closes a connection whose request headers are not complete within :data:`settings` 's
+``header_timeout`` seconds of the connection opening, or of the first byte of a later
+request on a kept-alive connection. The body and the response are not limited by it.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import copy
+import logging
+from typing import Any
+
+from uvicorn.config import LOGGING_CONFIG
+from uvicorn.protocols.http.h11_impl import H11Protocol
+
+__all__ = ["HeaderDeadlineProtocol", "configure_headers", "log_config"]
+
+log = logging.getLogger("alveary.api")
+
+#: Seconds a client may take to send a request's headers (set by :func:`configure_headers`).
+HEADER_TIMEOUT = 10.0
+
+
+def configure_headers(header_timeout: float) -> None:
+    """Set the header deadline of connections made from now on in this process."""
+    global HEADER_TIMEOUT
+    HEADER_TIMEOUT = float(header_timeout)
+
+
+class HeaderDeadlineProtocol(H11Protocol):
+    """uvicorn's h11 protocol, closing connections whose headers arrive too slowly."""
+
+    _header_timer: asyncio.TimerHandle | None = None
+    _waiting_cycle: object = None
+
+    def connection_made(self, transport: asyncio.Transport) -> None:  # type: ignore[override]
+        super().connection_made(transport)
+        self._arm()
+
+    def _arm(self) -> None:
+        self._disarm()
+        self._waiting_cycle = self.cycle
+        self._header_timer = self.loop.call_later(HEADER_TIMEOUT, self._headers_too_slow)
+
+    def _disarm(self) -> None:
+        if self._header_timer is not None:
+            self._header_timer.cancel()
+            self._header_timer = None
+
+    def data_received(self, data: bytes) -> None:
+        idle = self.cycle is None or self.cycle.response_complete
+        if self._header_timer is None and idle:
+            self._arm()  # the first bytes of a new request on a kept-alive connection
+        super().data_received(data)
+        if self._header_timer is not None and self.cycle is not self._waiting_cycle:
+            self._disarm()  # a new request's headers are complete
+
+    def connection_lost(self, exc: Exception | None) -> None:
+        self._disarm()
+        super().connection_lost(exc)
+
+    def _headers_too_slow(self) -> None:
+        self._header_timer = None
+        if self.cycle is self._waiting_cycle and not self.transport.is_closing():
+            client = f"{self.client[0]}:{self.client[1]}" if self.client else "a client"
+            log.info("closing the connection of %s: no request headers within the deadline", client)
+            self.transport.close()
+
+
+def log_config(level: str) -> dict[str, Any]:
+    """uvicorn's logging configuration, plus the service's own loggers (``alveary.*``)
+    on standard error with time, level and logger name."""
+    config = copy.deepcopy(LOGGING_CONFIG)
+    config["formatters"]["alveary"] = {
+        "format": "%(asctime)s %(levelname)s %(name)s %(message)s",
+    }
+    config["handlers"]["alveary"] = {
+        "formatter": "alveary",
+        "class": "logging.StreamHandler",
+        "stream": "ext://sys.stderr",
+    }
+    config["loggers"]["alveary"] = {
+        "handlers": ["alveary"],
+        "level": level.upper() if level.upper() != "TRACE" else "DEBUG",
+        "propagate": False,
+    }
+    return config
