@@ -9,7 +9,14 @@ is written down as the protocols :class:`ServedCube` and :class:`CubeSnapshot`.
 
 from alveary.query._catalog import Catalog, CubeSource
 from alveary.query._cube import CubeSnapshot, ServedCube
-from alveary.query._edr_params import CRS84, WITHIN_UNITS
+from alveary.query._edr_params import (
+    CRS84,
+    WITHIN_UNITS,
+    check_crs,
+    check_z,
+    parse_parameter_names,
+    within_metres,
+)
 from alveary.query._execute import execute
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
 from alveary.query._maptiles import (
@@ -48,6 +55,7 @@ from alveary.query._tiles import (
     tile_zone_candidates,
 )
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
+from alveary.query._wkt import coords_area, coords_lat_lon, parse_coords
 
 __all__ = [
     "CRS84",
@@ -79,14 +87,20 @@ __all__ = [
     "TimeSpec",
     "ZoneResult",
     "bbox_area",
+    "check_crs",
     "check_tile",
+    "check_z",
+    "coords_area",
+    "coords_lat_lon",
     "default_level",
     "execute",
     "format_time",
     "make_plan",
     "one_variable",
     "parse_bbox",
+    "parse_coords",
     "parse_datetime",
+    "parse_parameter_names",
     "parse_polygon",
     "parse_stats",
     "parse_vars",
@@ -102,5 +116,6 @@ __all__ = [
     "tile_intersects",
     "tile_zone_candidates",
     "value_range",
+    "within_metres",
     "zone_statistics",
 ]
