@@ -21,7 +21,7 @@ import anyio.to_thread
 import cachetools
 import numpy as np
 import orjson
-from fastapi import APIRouter, Query, Request
+from fastapi import APIRouter, Depends, Query, Request
 from starlette.responses import FileResponse, Response
 
 from alveary import __version__
@@ -42,6 +42,7 @@ from alveary.api.deps import (
     IfNoneMatch,
     LevelParam,
     VarsParam,
+    known_parameters,
 )
 from alveary.query import (
     CubeSnapshot,
@@ -216,6 +217,7 @@ def _draw(plan: TilePlan, values: np.ndarray, scale: ColourScale, lo: float, hi:
 @router.get(
     "/collections/{cube}/map/tiles/WebMercatorQuad/{z}/{y}/{x}",
     operation_id="map_tile",
+    dependencies=[Depends(known_parameters())],  # a typo such as variables= is named
     summary="A map tile: each pixel coloured by the value of the zone under it",
     description=(
         "A 256 × 256 PNG of one variable at one time step. Each pixel takes the colour of "
@@ -318,6 +320,7 @@ def _zones_of(resolved: ResolvedTile, max_zones: int) -> np.ndarray:
 @router.get(
     "/collections/{cube}/tiles/WebMercatorQuad/{z}/{y}/{x}",
     operation_id="vector_tile",
+    dependencies=[Depends(known_parameters())],  # a typo such as variables= is named
     summary="A vector tile: the zones under a tile with their values",
     description=(
         "A Mapbox Vector Tile (layer 'zones'): each zone with data is a polygon (its "
@@ -385,6 +388,7 @@ async def vector_tile(
 @router.get(
     "/collections/{cube}/legend",
     operation_id="legend",
+    dependencies=[Depends(known_parameters())],  # a typo such as variables= is named
     summary="A legend of a variable's colours: name, units, range",
     description=(
         "PNG (default) or SVG, by f or Accept. The range and colour scale are those the map "
