@@ -28,6 +28,16 @@ from alveary.query._edr_params import (
 from alveary.query._execute import execute
 from alveary.query._focal import FOCAL_STATISTICS, MAX_FOCAL_K, FocalSpec, parse_focal
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
+from alveary.query._maptiles import (
+    ResolvedTile,
+    TilePlan,
+    one_variable,
+    plan_tile,
+    read_tile,
+    read_zone_values,
+    resolve_tile,
+    value_range,
+)
 from alveary.query._models import (
     BboxQuery,
     DiskQuery,
@@ -44,6 +54,15 @@ from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
 from alveary.query._result import ResultVariable, StatsResult, TimeAxis, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._steps import select_steps, step_bounds
+from alveary.query._tiles import (
+    MAX_ZOOM,
+    PixelZoneCache,
+    TileZones,
+    check_tile,
+    default_level,
+    tile_intersects,
+    tile_zone_candidates,
+)
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
 from alveary.query._timeagg import (
     AGGREGATES,
@@ -62,6 +81,7 @@ __all__ = [
     "EVERY",
     "FOCAL_STATISTICS",
     "MAX_FOCAL_K",
+    "MAX_ZOOM",
     "MIN_YEARS",
     "STATISTICS",
     "WITHIN_UNITS",
@@ -75,6 +95,7 @@ __all__ = [
     "DiskQuery",
     "FocalSpec",
     "Limits",
+    "PixelZoneCache",
     "Plan",
     "PointQuery",
     "PointsQuery",
@@ -82,10 +103,13 @@ __all__ = [
     "Query",
     "RadiusQuery",
     "Resolved",
+    "ResolvedTile",
     "ResultVariable",
     "Selection",
     "ServedCube",
     "StatsResult",
+    "TilePlan",
+    "TileZones",
     "TimeAggregation",
     "TimeAxis",
     "TimeSpec",
@@ -94,12 +118,15 @@ __all__ = [
     "apply_analysis",
     "bbox_area",
     "check_crs",
+    "check_tile",
     "check_z",
     "coords_area",
     "coords_lat_lon",
+    "default_level",
     "execute",
     "format_time",
     "make_plan",
+    "one_variable",
     "parse_bbox",
     "parse_coords",
     "parse_datetime",
@@ -111,11 +138,18 @@ __all__ = [
     "parse_vars",
     "parse_zone",
     "plan_analysis",
+    "plan_tile",
+    "read_tile",
+    "read_zone_values",
     "resolve",
+    "resolve_tile",
     "select_steps",
     "select_times",
     "step_bounds",
+    "tile_intersects",
+    "tile_zone_candidates",
     "time_axis_json",
+    "value_range",
     "within_metres",
     "zone_statistics",
 ]
