@@ -144,6 +144,7 @@ class AnswerFrontMiddleware:
             ):
                 self.cache.hits += 1
                 scope["alveary.operation"] = answer.operation
+                scope["alveary.cube"] = answer.cube
                 await self._send(answer, scope, send)
                 return
         await self.app(scope, receive, send)

@@ -21,7 +21,9 @@ from pathlib import Path
 from typing import Any
 
 from fastapi import FastAPI
+from fastapi.openapi.docs import get_swagger_ui_html
 from fastapi.openapi.utils import get_openapi
+from starlette.responses import FileResponse, HTMLResponse, Response
 
 from alveary import __version__
 from alveary._errors import (
@@ -36,7 +38,7 @@ from alveary._errors import (
 )
 from alveary.api._schemas import EdrProblem, PointsBody, Problem
 
-__all__ = ["examples_dir", "install_openapi", "load_examples"]
+__all__ = ["DOCS_ASSETS", "examples_dir", "install_docs", "install_openapi", "load_examples"]
 
 # The problems each operation documents, by error class; the status comes from the one
 # table (alveary._errors.HTTP_STATUS).
@@ -74,7 +76,9 @@ readable text form, and `/zones/{zone}` accepts either.
   numbers in each. Missing data is `null` (JSON), null (Arrow) or an empty field (CSV).
 * Every answer has an ETag (cube version + normalised query) and Cache-Control;
   `If-None-Match` gets 304.
-* Errors are `application/problem+json` (RFC 9457).
+* Errors are `application/problem+json` (RFC 9457). A query parameter an operation does
+  not take is refused (422 naming it), so a typo never goes unnoticed.
+* Every GET also answers HEAD (the same status and headers, no body).
 
 Values are only as good as the data the cubes were built from; for decisions such as
 irrigation or flood response, local authorities and licensed practice decide.
@@ -198,3 +202,40 @@ def install_openapi(app: FastAPI) -> None:
         return schema
 
     app.openapi = build  # type: ignore[method-assign]
+
+
+# The API documentation page's assets, vendored from the npm package swagger-ui-dist (see
+# static/vendor/README.txt) and served by the service itself: /docs needs no internet.
+_VENDOR = Path(__file__).resolve().parent / "static" / "vendor" / "swagger-ui"
+DOCS_ASSETS = {
+    "swagger-ui-bundle.js": "text/javascript; charset=utf-8",
+    "swagger-ui.css": "text/css; charset=utf-8",
+    "favicon-32x32.png": "image/png",
+    "LICENSE.txt": "text/plain; charset=utf-8",
+    "NOTICE.txt": "text/plain; charset=utf-8",
+}
+
+
+def install_docs(app: FastAPI, openapi_url: str = "/openapi.json") -> None:
+    """``/docs``: the interactive documentation, every asset served from ``/docs/assets``."""
+
+    @app.get("/docs", include_in_schema=False)
+    async def docs() -> HTMLResponse:
+        return get_swagger_ui_html(
+            openapi_url=openapi_url,
+            title="alveary - API documentation",
+            swagger_js_url="/docs/assets/swagger-ui-bundle.js",
+            swagger_css_url="/docs/assets/swagger-ui.css",
+            swagger_favicon_url="/docs/assets/favicon-32x32.png",
+        )
+
+    @app.get("/docs/assets/{name}", include_in_schema=False)
+    async def docs_asset(name: str) -> Response:
+        media = DOCS_ASSETS.get(name)
+        if media is None:
+            return Response(status_code=404)
+        return FileResponse(
+            _VENDOR / name,
+            media_type=media,
+            headers={"Cache-Control": "public, max-age=86400"},
+        )

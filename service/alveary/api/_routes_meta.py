@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import orjson
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Depends, Request
 from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
 from alveary.api._edr_docs import landing_page
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import CredentialsDep, ServiceDep
+from alveary.api.deps import CredentialsDep, ServiceDep, known_parameters
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["service"])
+router = APIRouter(tags=["service"], dependencies=[Depends(known_parameters())])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
 _DESCRIPTION = "Spatial and time queries over hexagonal, equal-area data cubes"

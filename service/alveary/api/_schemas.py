@@ -86,6 +86,13 @@ class ZonesAnswer(BaseModel):
     variables: dict[str, VariableMeta]
     times: list[str] = Field(description="The selected time steps, RFC 3339 UTC.")
     zones: list[ZoneRow]
+    note: str | None = Field(
+        None,
+        description=(
+            "Present when the answer needs a word of explanation, e.g. a `nearest` radius "
+            "query that found no zone with data."
+        ),
+    )
 
 
 class StatsAnswer(BaseModel):

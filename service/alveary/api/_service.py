@@ -94,6 +94,8 @@ class Service:
         self.plans = PlanCache(settings.plan_cache_bytes)
         self.metrics = Metrics(self.catalog, self.cache, self.answers)
         self.cache_control = f"public, max-age={settings.max_age}"
+        # Area plans enumerate many zones in worker threads: two at a time per process.
+        self._planning = asyncio.Semaphore(2)
         self.gate = CellGate(settings.max_cells_in_flight, settings.queue_wait, _SMALL_CELLS)
         # cube id -> object key of the last object a read found missing or unreachable;
         # /readyz fails until the store has it again.
@@ -318,7 +320,8 @@ class Service:
             if isinstance(resolved.query, PointQuery):
                 plan = make_plan(resolved, self.limits)
             else:
-                plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
+                async with self._planning:
+                    plan = await anyio.to_thread.run_sync(make_plan, resolved, self.limits)
             if keep:
                 self.plans.put(resolved.key, plan)
         return plan

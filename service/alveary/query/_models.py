@@ -170,15 +170,25 @@ class BboxQuery:
 
 @dataclass(frozen=True)
 class PolygonQuery:
-    """Zones whose centres lie in a polygon; values or statistics."""
+    """Zones whose centres lie in a polygon; values or statistics.
+
+    ``properties`` is the canonical JSON text of a posted Feature's properties (empty
+    when there were none): a GeoJSON statistics answer keeps them, so they are part of
+    the key.
+    """
 
     area: Area
     stats: tuple[str, ...] = ()
     selection: Selection = field(default_factory=Selection)
+    properties: str = ""
     op = "polygon"
 
     def key(self) -> str:
-        return f"geometry={self.area.key};stats={','.join(self.stats)}"
+        key = f"geometry={self.area.key};stats={','.join(self.stats)}"
+        if self.properties:
+            digest = hashlib.blake2b(self.properties.encode(), digest_size=16).hexdigest()
+            key += f";properties={digest}"
+        return key
 
 
 @dataclass(frozen=True, eq=False)
