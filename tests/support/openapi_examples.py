@@ -316,6 +316,8 @@ def record(base_url: str, root: Path = ROOT, only: set[str] | None = None) -> No
             media = r.headers["content-type"]
             if media.startswith(_JSON_MEDIA):
                 content: Any = with_base(r.json(), base_url.rstrip("/"), RECORDED_BASE)
+                if isinstance(content, dict):
+                    content.pop("request_id", None)  # a fresh id per request
                 if only is not None:
                     content = with_version(content, live, kept)
             else:
