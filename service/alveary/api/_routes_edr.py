@@ -126,8 +126,8 @@ def _check_names(request: Request, known: set[str]) -> None:
 
 def _problem(status: int, body: dict[str, Any], headers: dict[str, str] | None = None) -> Response:
     request_id = REQUEST_ID.get()
-    if request_id is not None:  # as in every problem document (also X-Request-Id)
-        body["request_id"] = request_id
+    if request_id is not None:
+        body = {**body, "request_id": request_id}
     content = orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS)
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 
