@@ -8,7 +8,8 @@ and differ only in how parameters are read and answers encoded:
 - ``coords`` is WKT (:func:`alveary.query.parse_coords`); ``datetime`` selects the time
   steps whose intervals meet it, every step without it (``Selection.steps="overlap"``);
 - answers are CoverageJSON by default, GeoJSON, Arrow or CSV through ``f`` or ``Accept``;
-  a query that selects no data is 204 with no body;
+  a query that selects no data is 204 with no body, including one wholly outside the
+  cube's coverage (the native API's 404 naming the coverage);
 - an invalid or unsupported parameter, including one the operation does not define, is
   400, and every error body is the EDR exception document with problem+json members
   (:mod:`alveary.api._edr_problem`).
@@ -32,7 +33,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.routing import APIRoute
 from starlette.responses import Response
 
-from alveary._errors import AlvearyError, InvalidInput, StoreUnavailable
+from alveary._errors import AlvearyError, InvalidInput, NotFound, StoreUnavailable
 from alveary.api._answers import request_key
 from alveary.api._covjson import (
     COVJSON,
@@ -101,6 +102,10 @@ class EdrRoute(APIRoute):
             try:
                 _check_names(request, known)
                 return await handler(request)
+            except NotFound as exc:
+                if exc.kind == "data":  # wholly outside the cube's coverage: no data
+                    return Response(status_code=204)
+                return _error_response(exc, request)
             except AlvearyError as exc:
                 return _error_response(exc, request)
             except RequestValidationError as exc:
