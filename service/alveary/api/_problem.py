@@ -107,9 +107,12 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
             limit=exc.limit,
             requested=exc.requested,
             maximum=exc.maximum,
+            finest_level=exc.finest_level,
         )
     if isinstance(exc, NotFound):
-        return problem_response(status, title, exc.message, kind=exc.kind, name=str(exc.name))
+        return problem_response(
+            status, title, exc.message, kind=exc.kind, name=str(exc.name), **exc.members
+        )
     if isinstance(exc, RateLimited):
         return problem_response(
             status,

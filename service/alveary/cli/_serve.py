@@ -132,7 +132,9 @@ def serve(overrides: dict[str, Any]) -> int:
         # Slow or idle clients cannot hold the server: request headers within
         # header_timeout, idle keep-alive connections closed after keep_alive_timeout,
         # and at most max_connections connections (and tasks) per worker, more get 503.
-        http=HeaderDeadlineProtocol,
+        # As an import string: worker processes import it after they answer uvicorn's
+        # health checks (a class would be unpickled, importing the package, before).
+        http=f"{HeaderDeadlineProtocol.__module__}:{HeaderDeadlineProtocol.__name__}",
         timeout_keep_alive=settings.keep_alive_timeout,  # type: ignore[arg-type]
         limit_concurrency=settings.max_connections,
     )
