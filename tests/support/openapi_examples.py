@@ -287,8 +287,13 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
 ]
 
 
+# Examples send their own request id, so the problem documents they record are whole.
+EXAMPLE_REQUEST_ID = "example-request-0001"
+
+
 def send(client: httpx.Client, method: str, path: str, query: dict, body: Any) -> httpx.Response:
-    return client.request(method, path, params=query, json=body)
+    headers = {"X-Request-Id": EXAMPLE_REQUEST_ID}
+    return client.request(method, path, params=query, json=body, headers=headers)
 
 
 _JSON_MEDIA = (
