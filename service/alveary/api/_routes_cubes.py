@@ -4,7 +4,7 @@ object from its parameters and hands it to :meth:`Service.answer`."""
 from __future__ import annotations
 
 from typing import Any
-from urllib.parse import parse_qsl
+from urllib.parse import parse_qsl, quote
 
 import numpy as np
 import orjson
@@ -95,6 +95,8 @@ def _cube_meta(
     links = [
         {"href": f"/cubes/{cube_id}", "rel": "self" if full else "item", "type": "application/json"}
     ]
+    if cube is not None:
+        links += _map_links(cube_id)
     if cube is None:
         return {
             "id": cube_id,
@@ -131,6 +133,26 @@ def _cube_meta(
         "coverage": list(snap.coverage),
         "links": links,
     }
+
+
+def _map_links(cube_id: str) -> list[dict[str, str]]:
+    """Links from a cube to its map page, map tiles, vector tiles and legend."""
+    cid = quote(cube_id)
+    return [
+        {"href": f"/map?cube={cid}", "rel": "alternate", "type": "text/html", "title": "map"},
+        {
+            "href": f"/collections/{cid}/map/tiles",
+            "rel": "http://www.opengis.net/def/rel/ogc/1.0/tilesets-map",
+            "type": "application/json",
+            "title": "map tiles",
+        },
+        {
+            "href": f"/collections/{cid}/tiles",
+            "rel": "http://www.opengis.net/def/rel/ogc/1.0/tilesets-vector",
+            "type": "application/json",
+            "title": "zones as vector tiles",
+        },
+    ]
 
 
 @router.get(

@@ -104,6 +104,17 @@ class Settings(BaseSettings):
     plan_cache_bytes: int = Field(
         32 * 2**20, ge=0, description="Plans of area queries kept for repeats; 0: off."
     )
+    pixel_cache_bytes: int = Field(
+        64 * 2**20,
+        ge=0,
+        description="Pixel-to-zone maps of map tiles kept for other time steps; 0: off.",
+    )
+    basemap_url: str = Field(
+        "",
+        max_length=1000,
+        description="Raster tile URL template ({z}/{x}/{y}) drawn under the map page's "
+        "cube layer; empty (default): none, so the page needs no other host.",
+    )
     max_age: int = Field(60, ge=0, description="Cache-Control max-age of answers, seconds.")
     refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
     deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")

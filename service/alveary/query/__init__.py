@@ -19,6 +19,16 @@ from alveary.query._edr_params import (
 )
 from alveary.query._execute import execute
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
+from alveary.query._maptiles import (
+    ResolvedTile,
+    TilePlan,
+    one_variable,
+    plan_tile,
+    read_tile,
+    read_zone_values,
+    resolve_tile,
+    value_range,
+)
 from alveary.query._models import (
     BboxQuery,
     DiskQuery,
@@ -35,11 +45,21 @@ from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
 from alveary.query._result import ResultVariable, StatsResult, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._steps import select_steps, step_bounds
+from alveary.query._tiles import (
+    MAX_ZOOM,
+    PixelZoneCache,
+    TileZones,
+    check_tile,
+    default_level,
+    tile_intersects,
+    tile_zone_candidates,
+)
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
 from alveary.query._wkt import coords_area, coords_lat_lon, parse_coords
 
 __all__ = [
     "CRS84",
+    "MAX_ZOOM",
     "STATISTICS",
     "WITHIN_UNITS",
     "Area",
@@ -49,6 +69,7 @@ __all__ = [
     "CubeSource",
     "DiskQuery",
     "Limits",
+    "PixelZoneCache",
     "Plan",
     "PointQuery",
     "PointsQuery",
@@ -56,20 +77,26 @@ __all__ = [
     "Query",
     "RadiusQuery",
     "Resolved",
+    "ResolvedTile",
     "ResultVariable",
     "Selection",
     "ServedCube",
     "StatsResult",
+    "TilePlan",
+    "TileZones",
     "TimeSpec",
     "ZoneResult",
     "bbox_area",
     "check_crs",
+    "check_tile",
     "check_z",
     "coords_area",
     "coords_lat_lon",
+    "default_level",
     "execute",
     "format_time",
     "make_plan",
+    "one_variable",
     "parse_bbox",
     "parse_coords",
     "parse_datetime",
@@ -78,10 +105,17 @@ __all__ = [
     "parse_stats",
     "parse_vars",
     "parse_zone",
+    "plan_tile",
+    "read_tile",
+    "read_zone_values",
     "resolve",
+    "resolve_tile",
     "select_steps",
     "select_times",
     "step_bounds",
+    "tile_intersects",
+    "tile_zone_candidates",
+    "value_range",
     "within_metres",
     "zone_statistics",
 ]
