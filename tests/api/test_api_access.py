@@ -266,3 +266,16 @@ def test_cached_private_answer_is_not_served_without_a_key(http, keys):
     )
     assert revalidated.status_code == 304
     assert route in CUBE_ROUTES
+
+
+def test_python_client_reads_a_private_cube_with_its_key(server, keys):
+    from alveary import NotFound
+    from alveary.client import Client
+
+    with Client(server.url) as anonymous, Client(server.url, api_key=keys["file"][0]) as keyed:
+        assert [c["id"] for c in anonymous.cubes()["cubes"]] == [PUBLIC]
+        with pytest.raises(NotFound):
+            anonymous.point(PRIVATE, 10.2, 20.3)
+        private = keyed.point(PRIVATE, 10.2, 20.3)
+        public = anonymous.point(PUBLIC, 10.2, 20.3)
+        assert private["zones"] == public["zones"]

@@ -14,7 +14,9 @@ from http import HTTPStatus
 import httpx
 import pytest
 
+from alveary import RateLimited
 from alveary.api._access import hash_key, new_key
+from alveary.client import Client
 from support.server import ServiceProcess
 
 pytestmark = pytest.mark.server
@@ -88,5 +90,9 @@ def test_budget_per_client_and_retry_after(server, key):
         refused(http.get("/cubes/closed", headers=keyed))
         # a wrong key does not escape the address's budget
         refused(http.get(POINT, params=params, headers={**me, "X-API-Key": "0" * 12 + ".x" * 10}))
+        # the Python client raises the error of the one table, with the wait
+        with Client(server.url, headers=me) as client, pytest.raises(RateLimited) as info:
+            client.point("analytic", 1.0, 2.0)
+        assert 1 <= info.value.retry_after <= BURST
         time.sleep(wait + 0.2)
         assert http.get(POINT, params=params, headers=me).status_code == 200

@@ -22,6 +22,7 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.responses import Response
 
 from alveary import grid
+from alveary._context import REQUEST_ID
 from alveary._errors import (
     HTTP_STATUS,
     AlvearyError,
@@ -34,7 +35,6 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
-from alveary.api._requestlog import REQUEST_ID
 
 __all__ = ["PROBLEM", "domain_response", "install_handlers", "problem_response"]
 

@@ -20,33 +20,20 @@ import re
 import secrets
 import sys
 import time
-from contextvars import ContextVar
 from datetime import UTC, datetime
 from typing import Any
 
 import orjson
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
+from alveary._context import REQUEST_ID
 from alveary.cube import IOStats, request_io
 
-__all__ = ["REQUEST_ID", "RequestIdFilter", "RequestLogMiddleware", "access_logger"]
+__all__ = ["RequestLogMiddleware", "access_logger"]
 
-#: The id of the request being served (None outside a request).
-REQUEST_ID: ContextVar[str | None] = ContextVar("alveary_request_id", default=None)
 
 _SANE = re.compile(rb"^[A-Za-z0-9._:-]{1,64}$")
 _CUBE_PARAMS = ("cube", "collectionId", "collection_id")
-
-
-class RequestIdFilter(logging.Filter):
-    """Give every log record ``request``: `` request=<id>`` while a request is served (in
-    its threads too), else empty; a format ending in ``%(request)s`` names the request
-    a store error or warning happened in."""
-
-    def filter(self, record: logging.LogRecord) -> bool:
-        rid = REQUEST_ID.get()
-        record.request = f" request={rid}" if rid else ""
-        return True
 
 
 def access_logger() -> logging.Logger:

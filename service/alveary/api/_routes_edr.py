@@ -33,6 +33,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.routing import APIRoute
 from starlette.responses import Response
 
+from alveary._context import REQUEST_ID
 from alveary._errors import AlvearyError, InvalidInput, NotFound, StoreUnavailable
 from alveary.api._answers import request_key
 from alveary.api._covjson import (
@@ -52,7 +53,6 @@ from alveary.api._edr_docs import (
 from alveary.api._edr_problem import edr_error, exception_body
 from alveary.api._encode import encode
 from alveary.api._openapi30 import openapi_30
-from alveary.api._requestlog import REQUEST_ID
 from alveary.api._service import Encoder, Service
 from alveary.grid import MAX_LEVEL
 from alveary.query import (

@@ -20,7 +20,8 @@ from typing import Any
 from uvicorn.config import LOGGING_CONFIG
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
-from alveary.api import RequestIdFilter
+# light (standard library only): workers unpickle it before their health check
+from alveary._context import RequestIdFilter
 
 __all__ = ["HeaderDeadlineProtocol", "configure_headers", "log_config"]
 

@@ -16,7 +16,7 @@ from typing import Any, Generic, NoReturn, TypeVar
 
 import httpx
 
-from alveary._errors import InvalidInput, LimitExceeded, NotFound, error_for_status
+from alveary._errors import InvalidInput, LimitExceeded, NotFound, RateLimited, error_for_status
 
 __all__ = ["AsyncClient", "Client", "format_datetime"]
 
@@ -111,7 +111,17 @@ def _raise(response: httpx.Response) -> NoReturn:
         raise cls(parameter, doc.get("value"), doc.get("allowed"), message=detail)
     if issubclass(cls, NotFound):
         raise cls(str(doc.get("kind", "resource")), doc.get("name", ""), message=detail)
+    if issubclass(cls, RateLimited):
+        wait = response.headers.get("retry-after", "1")
+        raise cls(detail, int(wait) if wait.isdigit() else 1)
     raise cls(f"HTTP {response.status_code}: {detail}")
+
+
+def _with_key(headers: dict[str, str] | None, api_key: str | None) -> dict[str, str] | None:
+    """The request headers, with the API key (of private cubes) as a Bearer token."""
+    if api_key is None:
+        return headers
+    return {**(headers or {}), "Authorization": f"Bearer {api_key}"}
 
 
 def _decode(response: httpx.Response, call: _Call) -> Any:
@@ -324,6 +334,8 @@ class Client(_Operations[Any]):
         Extra headers sent with every request.
     transport:
         An httpx transport (e.g. ``httpx.ASGITransport(app)`` or one with retries).
+    api_key:
+        An API key of private cubes (``alveary keys new``), sent as a Bearer token.
 
     Examples
     --------
@@ -338,8 +350,9 @@ class Client(_Operations[Any]):
         timeout: float = 30.0,
         headers: dict[str, str] | None = None,
         transport: httpx.BaseTransport | None = None,
+        api_key: str | None = None,
     ) -> None:
-        self.headers = headers
+        self.headers = _with_key(headers, api_key)
         self._http = httpx.Client(base_url=base_url, timeout=timeout, transport=transport)
 
     def _send(self, call: _Call) -> Any:
@@ -366,8 +379,9 @@ class AsyncClient(_Operations[Awaitable[Any]]):
         timeout: float = 30.0,
         headers: dict[str, str] | None = None,
         transport: httpx.AsyncBaseTransport | None = None,
+        api_key: str | None = None,
     ) -> None:
-        self.headers = headers
+        self.headers = _with_key(headers, api_key)
         self._http = httpx.AsyncClient(base_url=base_url, timeout=timeout, transport=transport)
 
     def _send(self, call: _Call) -> Awaitable[Any]:
