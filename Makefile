@@ -7,7 +7,7 @@ STAMP  := $(VENV)/.installed
 FAST   := tests/grid tests/cube/test_cube_layout.py tests/query tests/api \
           service/alveary/grid service/alveary/cube service/alveary/query service/alveary/api
 
-.PHONY: demo test test-fast lint bench clean venv
+.PHONY: demo test test-fast lint bench soak clean venv
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -42,3 +42,7 @@ bench: $(STAMP)
 
 clean:
 	rm -rf $(VENV) .pytest_cache .hypothesis .mypy_cache .import_linter_cache build *.egg-info
+
+## The heavier reliability runs on loopback (not part of make test): prints the figures.
+soak: $(STAMP)
+	$(BIN)/python tests/soak/run.py

@@ -17,8 +17,10 @@ from alveary.api._metrics import MetricsMiddleware
 from alveary.api._openapi import DESCRIPTION, install_docs, install_openapi
 from alveary.api._problem import domain_response, install_handlers
 from alveary.api._ratelimit import RateLimit, RateLimitMiddleware
+from alveary.api._requestlog import RequestLogMiddleware, access_logger
 from alveary.api._routes_cubes import install_point_lane
 from alveary.api._routes_cubes import router as cubes_router
+from alveary.api._routes_edr import router as edr_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
 from alveary.api._service import Service
@@ -118,6 +120,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     install_point_lane(app)
     app.include_router(cubes_router)
     app.include_router(zones_router)
+    app.include_router(edr_router)
     install_openapi(app)
     install_docs(app)
     _add_middleware(app, service, settings)
@@ -125,7 +128,8 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
 
 
 def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
-    """The ASGI layers around the routes; the last added runs first (metrics outermost)."""
+    """The ASGI layers around the routes; the last added runs first (request log outermost,
+    then metrics, body limit, CORS, rate limit, answer front)."""
     app.add_middleware(
         AnswerFrontMiddleware,
         cache=service.answers,
@@ -153,6 +157,8 @@ def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
     app.add_middleware(HeadMiddleware)
     app.add_middleware(MetricsMiddleware, metrics=service.metrics)
+    logger = access_logger() if settings.access_log else None
+    app.add_middleware(RequestLogMiddleware, logger=logger)
 
 
 def create_app_from_env() -> FastAPI:

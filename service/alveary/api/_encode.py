@@ -326,9 +326,10 @@ def _zone_csv_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
         zones = result.zones[sel]
         n = zones.size
         lat, lon = grid.zone_to_point(zones)
+        repeat = pa.array(np.repeat(np.arange(n), t))
         cols: list[pa.Array] = [
             pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64()),
-            pa.array(np.repeat(np.asarray(grid.zone_to_text(zones)), t).tolist(), pa.string()),
+            pa.array(np.asarray(grid.zone_to_text(zones)), pa.string()).take(repeat),
             pa.array(np.repeat(np.asarray(lat, dtype=np.float64), t)),
             pa.array(np.repeat(np.asarray(lon, dtype=np.float64), t)),
             pa.chunked_array([times] * n).combine_chunks() if n else times[:0],

@@ -36,7 +36,7 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
-from alveary.api._schemas import PointsBody, Problem
+from alveary.api._schemas import EdrProblem, PointsBody, Problem
 
 __all__ = ["DOCS_ASSETS", "examples_dir", "install_docs", "install_openapi", "load_examples"]
 
@@ -56,6 +56,11 @@ _PROBLEM_TEXT: tuple[tuple[type[AlvearyError], str], ...] = (
 _PROBLEMS = {str(http_status(cls).status): text for cls, text in _PROBLEM_TEXT}
 _GRID_PROBLEMS = tuple(str(http_status(cls).status) for cls in (NotFound, InvalidInput))
 _META_OPS = {"landing", "health", "ready", "metrics"}
+# OGC API - EDR operations answer invalid parameters with 400 (not 422) and the EDR
+# exception body; their documents have no store reads, their queries every fault.
+_EDR_PREFIX = "edr_"
+_EDR_INVALID = "Invalid or unsupported parameter (including one the operation does not define)."
+_EDR_DOCS = {"edr_conformance": ("400",), "edr_collections": ("400",)}
 
 DESCRIPTION = """\
 Spatial and time queries over hexagonal, equal-area data cubes.
@@ -144,6 +149,19 @@ def _path_value(op: dict[str, Any], path: str, name: str) -> str | None:
     return None
 
 
+def _edr_problems(op_id: str, responses: dict[str, Any]) -> None:
+    """The errors of an EDR operation: 400 for parameters, the rest as on native paths."""
+    invalid = str(http_status(InvalidInput).status)
+    texts = {"400": _EDR_INVALID} | {k: v for k, v in _PROBLEMS.items() if k != invalid}
+    codes = _EDR_DOCS.get(op_id, tuple(texts))
+    ref = {"$ref": "#/components/schemas/EdrProblem"}
+    for code in codes:
+        responses[code] = {
+            "description": texts[code],
+            "content": {"application/problem+json": {"schema": ref}},
+        }
+
+
 def install_openapi(app: FastAPI) -> None:
     """Replace ``app.openapi`` by a generator that adds problems and examples."""
 
@@ -157,7 +175,7 @@ def install_openapi(app: FastAPI) -> None:
             routes=app.routes,
         )
         components = schema.setdefault("components", {}).setdefault("schemas", {})
-        for model in (Problem, PointsBody):
+        for model in (Problem, EdrProblem, PointsBody):
             components[model.__name__] = model.model_json_schema(
                 ref_template="#/components/schemas/{model}"
             )
@@ -168,7 +186,9 @@ def install_openapi(app: FastAPI) -> None:
                 op_id = op.get("operationId", "")
                 responses = op.setdefault("responses", {})
                 responses.pop("422", None)  # FastAPI's own validation schema: replaced below
-                if op_id not in _META_OPS:
+                if op_id.startswith(_EDR_PREFIX):
+                    _edr_problems(op_id, responses)
+                elif op_id not in _META_OPS:
                     codes = _GRID_PROBLEMS if path.startswith("/zones") else tuple(_PROBLEMS)
                     for code in codes:
                         responses[code] = {

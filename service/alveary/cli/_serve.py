@@ -127,11 +127,14 @@ def serve(overrides: dict[str, Any]) -> int:
         port=settings.port,
         log_level=settings.log_level,
         log_config=log_config(settings.log_level),
+        access_log=not settings.access_log,  # the service writes its own JSON request log
         proxy_headers=False,
         # Slow or idle clients cannot hold the server: request headers within
         # header_timeout, idle keep-alive connections closed after keep_alive_timeout,
         # and at most max_connections connections (and tasks) per worker, more get 503.
-        http=HeaderDeadlineProtocol,
+        # As an import string: worker processes import it after they answer uvicorn's
+        # health checks (a class would be unpickled, importing the package, before).
+        http=f"{HeaderDeadlineProtocol.__module__}:{HeaderDeadlineProtocol.__name__}",
         timeout_keep_alive=settings.keep_alive_timeout,  # type: ignore[arg-type]
         limit_concurrency=settings.max_connections,
     )

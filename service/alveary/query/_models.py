@@ -9,6 +9,7 @@ from __future__ import annotations
 import hashlib
 import math
 from dataclasses import dataclass, field
+from typing import Literal
 
 import numpy as np
 
@@ -76,11 +77,17 @@ class Selection:
     """The parts every cube query shares: level, variables and time.
 
     ``level`` None means the cube's finest level, ``variables`` None every variable.
+    ``steps`` is the rule by which ``time`` picks time steps: ``"in_force"`` (the native
+    API: an instant picks the step in force then, an interval the steps that start in
+    it, no ``datetime`` the latest step) or ``"overlap"`` (OGC API - EDR: the steps whose
+    intervals meet ``time``, no ``datetime`` every step; see
+    :func:`alveary.query.select_steps`).
     """
 
     level: int | None = None
     variables: tuple[str, ...] | None = None
     time: TimeSpec = field(default_factory=lambda: parse_datetime(None))
+    steps: Literal["in_force", "overlap"] = "in_force"
 
 
 @dataclass(frozen=True)

@@ -38,6 +38,7 @@ from alveary.query._models import (
     RadiusQuery,
 )
 from alveary.query._result import ResultVariable
+from alveary.query._steps import select_steps
 from alveary.query._time import select_times
 
 __all__ = ["Limits", "Plan", "Resolved", "finest_fitting_level", "make_plan", "resolve"]
@@ -114,7 +115,8 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
     NotFound
         Unknown cube.
     InvalidInput
-        A level the cube does not hold, an unknown variable, an instant before the time axis.
+        A level the cube does not hold, an unknown variable, an instant before the time
+        axis (under the ``"in_force"`` rule; under ``"overlap"`` it selects no step).
     """
     cube = catalog.get(cube_id).snapshot()
     sel = query.selection
@@ -138,7 +140,10 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
         if unknown:
             raise InvalidInput("vars", unknown[0], f"variables of this cube: {', '.join(names)}")
         variables = sel.variables
-    t0, t1 = select_times(sel.time, np.asarray(cube.times))
+    if sel.steps == "overlap":
+        t0, t1 = select_steps(sel.time, np.asarray(cube.times))
+    else:
+        t0, t1 = select_times(sel.time, np.asarray(cube.times))
     return Resolved(cube_id, cube, cube.version, level, variables, t0, t1, query)
 
 
