@@ -96,23 +96,49 @@ class IngestError(InvalidInput):
 
 
 class NotFound(AlvearyError, LookupError):
-    """An unknown cube, variable or zone."""
+    """An unknown cube, variable or zone, or a selection with nothing of a cube in it.
 
-    def __init__(self, kind: str, name: Any, message: str | None = None) -> None:
+    ``members`` are further facts for the caller (``coverage`` for a selection outside a
+    cube's coverage); the service adds them to the problem document.
+    """
+
+    def __init__(
+        self,
+        kind: str,
+        name: Any,
+        message: str | None = None,
+        *,
+        members: dict[str, Any] | None = None,
+    ) -> None:
         self.kind = kind
         self.name = name
         self.message = message or f"unknown {kind}: {name!r}"
+        self.members = dict(members or {})
         super().__init__(self.message)
 
 
 class LimitExceeded(AlvearyError, ValueError):
-    """A request would exceed a configured limit."""
+    """A request would exceed a configured limit.
 
-    def __init__(self, limit: str, requested: int | float, maximum: int | float) -> None:
+    ``finest_level``, when known, is the finest level of the cube at which the same
+    request would fit (the service names it in the problem document).
+    """
+
+    def __init__(
+        self,
+        limit: str,
+        requested: int | float,
+        maximum: int | float,
+        *,
+        finest_level: int | None = None,
+    ) -> None:
         self.limit = limit
         self.requested = requested
         self.maximum = maximum
+        self.finest_level = finest_level
         self.message = f"{limit}: requested {requested}, the limit is {maximum}"
+        if finest_level is not None:
+            self.message += f"; level {finest_level} is the finest at which it fits"
         super().__init__(self.message)
 
 

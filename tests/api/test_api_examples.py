@@ -14,10 +14,12 @@ from alveary.api._openapi import load_examples
 from support.openapi_examples import (
     CUBE,
     EXAMPLES,
+    RECORDED_BASE,
     ROOT,
     compare,
     compare_metrics,
     send,
+    with_base,
     with_version,
 )
 from support.server import ServiceProcess
@@ -79,4 +81,5 @@ def test_replay(demo_service, versions, op_id, name, example):
     if expected["compare"] == "metrics":
         compare_metrics(expected["body"], r.text)
         return
-    compare(with_version(expected["body"], *versions), r.json())
+    body = with_base(expected["body"], RECORDED_BASE, demo_service.url)
+    compare(with_version(body, *versions), r.json())

@@ -151,6 +151,7 @@ def test_a_listed_chunk_missing_is_503_until_it_is_back(s3_server, store, svc, h
     line = next(x for x in log.splitlines() if "store fault" in x and CUBE in x)
     assert re.match(r"^\d{4}-\d\d-\d\d \d\d:\d\d:\d\d", line), line
     assert " ERROR " in line and key.split("/", 1)[1] in line
+    assert re.search(r" request=[0-9a-f]{32}$", line), line  # the request it happened in
 
 
 def test_a_chunk_never_written_is_no_data(http):

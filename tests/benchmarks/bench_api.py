@@ -6,6 +6,10 @@ process on 127.0.0.1. Measured:
 
 1. warm point queries per second against the same server's /healthz (wrk on loopback;
    skipped with a message if wrk is absent), and p99 / p50 latency;
+1b. fresh points: every request a new random point inside the cube's coverage (what a
+   field app's GPS fixes send; no answer can be replayed), answer cache off, per second
+   against /healthz on the same server, with p50 and p99 (a keep-alive asyncio
+   load generator on raw sockets, so no tool needs installing);
 2. cold queries: chunk GETs the S3 server logged against the plan's minimal cover
    (point, disk k = 10, a 10 000-zone polygon, a one-year series);
 3. a 100 000-zone polygon answer: Arrow against JSON, time and bytes;
@@ -128,6 +132,7 @@ def main() -> None:
         # Answer cache off: what the chunk cache alone gives, and the encoders' own cost.
         svc = ServiceProcess(cubes, options={**base, "answer_cache_bytes": 0})
         with svc, httpx.Client(base_url=svc.url, timeout=120) as http:
+            fresh_points(svc)
             arrow_vs_json(http)
             warm_throughput(svc, "chunk cache only (answer cache off)")
         with ServiceProcess(cubes, options=base) as svc:
@@ -245,6 +250,75 @@ def warm_throughput(svc: ServiceProcess, label: str) -> None:
         f"point p99 / p50: {p[2] / p[1]:.2f} at 32 connections, "
         f"{p1[2] / p1[1]:.2f} at one (goal < 3)"
     )
+
+
+async def _load(
+    host: str, port: int, paths: list[str], seconds: float, connections: int
+) -> tuple[float, float, float, int]:
+    """Keep-alive GETs over raw sockets for ``seconds``: (req/s, p50 ms, p99 ms, non-200)."""
+    queue = iter(paths * (1 + 1_000_000 // max(len(paths), 1)))
+    latencies: list[float] = []
+    bad = 0
+    stop = time.perf_counter() + seconds
+
+    async def one_connection() -> None:
+        nonlocal bad
+        reader, writer = await asyncio.open_connection(host, port)
+        try:
+            while time.perf_counter() < stop:
+                path = next(queue)
+                t0 = time.perf_counter()
+                writer.write(f"GET {path} HTTP/1.1\r\nHost: {host}\r\n\r\n".encode())
+                head = await reader.readuntil(b"\r\n\r\n")
+                length = int(re.search(rb"(?i)content-length:\s*(\d+)", head).group(1))
+                await reader.readexactly(length)
+                latencies.append(time.perf_counter() - t0)
+                bad += not head.startswith(b"HTTP/1.1 200")
+        finally:
+            writer.close()
+
+    t0 = time.perf_counter()
+    await asyncio.gather(*(one_connection() for _ in range(connections)))
+    elapsed = time.perf_counter() - t0
+    ms = np.array(latencies) * 1e3
+    return len(latencies) / elapsed, float(np.median(ms)), float(np.percentile(ms, 99)), bad
+
+
+def fresh_points(svc: ServiceProcess, seconds: float = 6.0) -> None:
+    """Fresh random points inside the coverage against /healthz, the same server."""
+    print("\n### fresh points: a new random point inside the coverage every request")
+    print("(answer cache off, warm chunks; asyncio raw-socket keep-alive client on loopback)")
+    host, port = svc.url.removeprefix("http://").split(":")
+    rng = np.random.default_rng(7)
+    n = 200_000
+    west, south, east, north = REGION
+    lat = south + 0.5 + (north - south - 1.0) * rng.random(n)
+    lon = west + 0.5 + (east - west - 1.0) * rng.random(n)
+    points = [f"/cubes/bench/point?lat={a:.6f}&lon={b:.6f}" for a, b in zip(lat, lon, strict=True)]
+    # Warm the chunks of the latest step everywhere (one bbox read per level) and the code.
+    middle = (west + east) / 2
+    for level in LEVELS:
+        for box in ((west, south, middle, north), (middle, south, east, north)):
+            httpx.get(
+                f"{svc.url}/cubes/bench/bbox",
+                params={"bbox": ",".join(map(str, box)), "level": level, "f": "arrow"},
+                timeout=300,
+            ).raise_for_status()
+    asyncio.run(_load(host, int(port), points[-5000:], 1.5, 8))
+    rows = []
+    for conns in (8, 1):
+        h = asyncio.run(_load(host, int(port), ["/healthz"], seconds, conns))
+        p = asyncio.run(_load(host, int(port), points, seconds, conns))
+        rows.append((conns, h, p))
+    print(f"{'path':<16}{'req/s':>10}{'p50 ms':>10}{'p99 ms':>10}{'non-2xx':>10}")
+    for conns, h, p in rows:
+        for name, (rps, p50, p99, bad) in ((f"healthz {conns}c", h), (f"fresh point {conns}c", p)):
+            print(f"{name:<16}{rps:>10.0f}{p50:>10.3f}{p99:>10.3f}{bad:>10}")
+    for conns, h, p in rows:
+        print(
+            f"{conns} connection(s): fresh point / healthz rate {p[0] / h[0]:.2f} (goal >= 0.5); "
+            f"point p99 / p50 {p[2] / p[1]:.2f} (goal < 3)"
+        )
 
 
 async def _mixed(url: str, n: int, seed: int, concurrency: int = 16):

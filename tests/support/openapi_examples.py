@@ -2,7 +2,8 @@
 
 The files under ``openapi_examples/<operation_id>/<name>.json`` are recorded from a
 service serving the demo cube (``alveary demo``) by
-``python tests/support/openapi_examples.py BASE_URL``, loaded into the OpenAPI document
+``python tests/support/openapi_examples.py BASE_URL [OPERATION_ID ...]`` (naming operations
+records just those, keeping the cube version of the others), loaded into the OpenAPI document
 by the service, and replayed by ``tests/api/test_api_examples.py``. The demo data are
 invented. They are the service's own earlier answers: documentation that is kept true,
 not a check against anything outside the code.
@@ -18,10 +19,23 @@ from typing import Any
 
 import httpx
 
-__all__ = ["EXAMPLES", "ROOT", "compare", "compare_metrics", "record", "send", "with_version"]
+__all__ = [
+    "EXAMPLES",
+    "RECORDED_BASE",
+    "ROOT",
+    "compare",
+    "compare_metrics",
+    "record",
+    "send",
+    "with_base",
+    "with_version",
+]
 
 ROOT = Path(__file__).resolve().parents[2] / "openapi_examples"
 
+#: Absolute links in the examples (the landing page's) are written with this base URL;
+#: the replay puts the live service's in its place.
+RECORDED_BASE = "http://127.0.0.1:8000"
 CUBE = "velmora-irrigation"
 BASE = f"/cubes/{CUBE}"
 WEEK = "2025-06-01T00:00:00Z/2025-06-07T00:00:00Z"
@@ -37,6 +51,9 @@ SQUARE = {
         ]
     ],
 }
+
+EDR = f"/collections/{CUBE}"
+SQUARE_WKT = "POLYGON((" + ", ".join(f"{x} {y}" for x, y in SQUARE["coordinates"][0]) + "))"
 
 # (operation id, name, summary, method, path, query, body, compare)
 EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
@@ -125,6 +142,126 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
         "exact",
     ),
     (
+        "edr_conformance",
+        "classes",
+        "The conformance classes",
+        "GET",
+        "/conformance",
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "edr_collections",
+        "all",
+        "Every cube as a collection",
+        "GET",
+        "/collections",
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "edr_collection",
+        "demo",
+        "The demo cube as an EDR collection",
+        "GET",
+        EDR,
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "edr_position",
+        "week",
+        "Soil moisture at a point for one week, as a CoverageJSON PointSeries",
+        "GET",
+        f"{EDR}/position",
+        {"coords": "POINT(-36.1 30.55)", "parameter-name": "soil_moisture", "datetime": WEEK},
+        None,
+        "exact",
+    ),
+    (
+        "edr_position",
+        "bad-crs",
+        "A CRS other than CRS84: 400 with the EDR exception body",
+        "GET",
+        f"{EDR}/position",
+        {"coords": "POINT(-36.1 30.55)", "crs": "EPSG:4326"},
+        None,
+        "exact",
+    ),
+    (
+        "edr_position_post",
+        "two",
+        "Two points in a JSON body: a MultiPointSeries",
+        "POST",
+        f"{EDR}/position",
+        {},
+        {
+            "coords": "MULTIPOINT((-36.1 30.55), (-36.0 30.62))",
+            "parameter-name": ["soil_moisture"],
+            "datetime": "2025-07-15T00:00:00Z",
+        },
+        "exact",
+    ),
+    (
+        "edr_radius",
+        "fix",
+        "Zones within 300 m of a GPS fix on one day",
+        "GET",
+        f"{EDR}/radius",
+        {
+            "coords": "POINT(-36.1 30.55)",
+            "within": "300",
+            "within-units": "m",
+            "parameter-name": "soil_moisture",
+            "datetime": "2025-07-15T00:00:00Z",
+        },
+        None,
+        "exact",
+    ),
+    (
+        "edr_area",
+        "mean",
+        "Daily mean soil moisture over a field parcel for a week: a PolygonSeries",
+        "GET",
+        f"{EDR}/area",
+        {
+            "coords": SQUARE_WKT,
+            "stats": "mean",
+            "parameter-name": "soil_moisture",
+            "datetime": WEEK,
+        },
+        None,
+        "exact",
+    ),
+    (
+        "edr_area_post",
+        "values",
+        "Per-zone values in a field parcel on one day, parameters in a JSON body",
+        "POST",
+        f"{EDR}/area",
+        {},
+        {"coords": SQUARE_WKT, "datetime": "2025-07-15T00:00:00Z"},
+        "exact",
+    ),
+    (
+        "edr_cube",
+        "box",
+        "Canopy temperature in a box on one day, as GeoJSON",
+        "GET",
+        f"{EDR}/cube",
+        {
+            "bbox": "-36.105,30.545,-36.095,30.553",
+            "parameter-name": "canopy_temperature",
+            "datetime": "2025-07-15T00:00:00Z",
+            "f": "GeoJSON",
+        },
+        None,
+        "exact",
+    ),
+    (
         "find_zone",
         "at-point",
         "The level-12 zone under a point",
@@ -154,16 +291,33 @@ def send(client: httpx.Client, method: str, path: str, query: dict, body: Any) -
     return client.request(method, path, params=query, json=body)
 
 
-def record(base_url: str, root: Path = ROOT) -> None:
-    """Send every example request to a running service and write the example files."""
+_JSON_MEDIA = (
+    "application/json",
+    "application/problem+json",
+    "application/geo+json",
+    "application/vnd.cov+json",
+)
+
+
+def record(base_url: str, root: Path = ROOT, only: set[str] | None = None) -> None:
+    """Send every example request to a running service and write the example files.
+
+    ``only``: record just these operations, with the cube version of the examples
+    already recorded (``get_cube/demo``) in place of the live one.
+    """
     with httpx.Client(base_url=base_url, timeout=30) as client:
+        live = client.get(BASE).json()["version"]
+        recorded = json.loads((root / "get_cube" / "demo.json").read_text())
+        kept = recorded["response"]["body"]["version"]
         for op_id, name, summary, method, path, query, body, how in EXAMPLES:
+            if only is not None and op_id not in only:
+                continue
             r = send(client, method, path, query, body)
             media = r.headers["content-type"]
-            if media.startswith(
-                ("application/json", "application/problem+json", "application/geo+json")
-            ):
-                content: Any = r.json()
+            if media.startswith(_JSON_MEDIA):
+                content: Any = with_base(r.json(), base_url.rstrip("/"), RECORDED_BASE)
+                if only is not None:
+                    content = with_version(content, live, kept)
             else:
                 content = r.text.splitlines()[:3] if how == "metrics" else r.text
                 content = "\n".join(content) if isinstance(content, list) else content
@@ -180,6 +334,18 @@ def record(base_url: str, root: Path = ROOT) -> None:
             out = root / op_id / f"{name}.json"
             out.parent.mkdir(parents=True, exist_ok=True)
             out.write_text(json.dumps(doc, indent=2, ensure_ascii=False) + "\n")
+
+
+def with_base(body: Any, recorded: str, live: str) -> Any:
+    """``body`` with every string that starts with the base URL ``recorded`` starting with
+    ``live`` instead (absolute links name the host they were served from)."""
+    if isinstance(body, dict):
+        return {k: with_base(v, recorded, live) for k, v in body.items()}
+    if isinstance(body, list):
+        return [with_base(v, recorded, live) for v in body]
+    if isinstance(body, str) and body.startswith(recorded):
+        return live + body[len(recorded) :]
+    return body
 
 
 def with_version(body: Any, recorded: str, live: str) -> Any:
@@ -225,4 +391,4 @@ def compare_metrics(expected: str, got: str) -> None:
 
 
 if __name__ == "__main__":  # pragma: no cover
-    record(sys.argv[1])
+    record(sys.argv[1], only=set(sys.argv[2:]) or None)

@@ -6,6 +6,7 @@ names the setting at fault); the ``alveary serve`` command runs it under uvicorn
 
 from alveary.api._access import hash_key, key_line, new_key, verify_key
 from alveary.api._app import create_app, create_app_from_env
+from alveary.api._requestlog import RequestIdFilter
 from alveary.api._settings import (
     CubeConfig,
     Settings,
@@ -16,6 +17,7 @@ from alveary.api._settings import (
 
 __all__ = [
     "CubeConfig",
+    "RequestIdFilter",
     "Settings",
     "create_app",
     "create_app_from_env",

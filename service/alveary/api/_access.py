@@ -234,9 +234,13 @@ class KeyRing:
         return cube_id not in self.private or cube_id in credentials.cubes
 
     def known(self, key: str | None) -> Credentials | None:
-        """The credentials of a key already checked (None: not checked yet)."""
+        """The credentials of a key, if they are known without the slow hash (None: the
+        key names a listed key id and was not checked yet)."""
         if not key:
             return ANONYMOUS
+        match = _KEY.match(key)
+        if match is None or match.group(1) not in self._keys:
+            return ANONYMOUS  # malformed, or no such key id: nothing to hash
         with self._lock:
             return self._seen.get(hashlib.sha256(key.encode("utf-8")).digest())
 

@@ -31,6 +31,9 @@ __all__ = [
     "request_key",
 ]
 
+# Paths under which answers are cached: the native cube queries and the EDR queries.
+_QUERY_PREFIXES = ("/cubes/", "/collections/")
+
 
 @dataclass(frozen=True)
 class Answer:
@@ -100,7 +103,8 @@ def _body_size(answer: Answer) -> int:
 
 
 class AnswerFrontMiddleware:
-    """Answer an identical repeat of a cube GET from the cache, before routing.
+    """Answer an identical repeat of a cube GET (native or EDR query) from the cache,
+    before routing.
 
     ``current_version(cube_id)`` returns the version a cube serves now (or None); an entry
     made from another version is not used. ``credentials(scope)`` and
@@ -126,7 +130,11 @@ class AnswerFrontMiddleware:
         self.readable = readable
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] == "http" and self.cache.max_bytes and scope["path"].startswith("/cubes/"):
+        if (
+            scope["type"] == "http"
+            and self.cache.max_bytes
+            and scope["path"].startswith(_QUERY_PREFIXES)
+        ):
             key = request_key(scope)
             answer = self.cache.lookup(key) if key is not None else None
             if (
@@ -136,6 +144,7 @@ class AnswerFrontMiddleware:
             ):
                 self.cache.hits += 1
                 scope["alveary.operation"] = answer.operation
+                scope["alveary.cube"] = answer.cube
                 await self._send(answer, scope, send)
                 return
         await self.app(scope, receive, send)

@@ -12,11 +12,15 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from alveary._errors import LimitExceeded
 from alveary.api._answers import AnswerFrontMiddleware
+from alveary.api._head import HeadMiddleware
 from alveary.api._metrics import MetricsMiddleware
-from alveary.api._openapi import DESCRIPTION, install_openapi
+from alveary.api._openapi import DESCRIPTION, install_docs, install_openapi
 from alveary.api._problem import domain_response, install_handlers
 from alveary.api._ratelimit import RateLimit, RateLimitMiddleware
+from alveary.api._requestlog import RequestLogMiddleware, access_logger
+from alveary.api._routes_cubes import install_point_lane
 from alveary.api._routes_cubes import router as cubes_router
+from alveary.api._routes_edr import router as edr_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
 from alveary.api._service import Service
@@ -107,21 +111,25 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
         title="alveary",
         description=DESCRIPTION,
         lifespan=lifespan,
-        docs_url="/docs",
+        docs_url=None,  # served from the package's own assets (install_docs)
         redoc_url=None,
     )
     app.state.service = service
     install_handlers(app, settings.retry_after)
     app.include_router(meta_router)
+    install_point_lane(app)
     app.include_router(cubes_router)
     app.include_router(zones_router)
+    app.include_router(edr_router)
     install_openapi(app)
+    install_docs(app)
     _add_middleware(app, service, settings)
     return app
 
 
 def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
-    """The ASGI layers around the routes; the last added runs first (metrics outermost)."""
+    """The ASGI layers around the routes; the last added runs first (request log outermost,
+    then metrics, body limit, CORS, rate limit, answer front)."""
     app.add_middleware(
         AnswerFrontMiddleware,
         cache=service.answers,
@@ -147,7 +155,10 @@ def _add_middleware(app: FastAPI, service: Service, settings: Settings) -> None:
             max_age=600,
         )
     app.add_middleware(BodyLimitMiddleware, max_bytes=settings.max_body_bytes)
+    app.add_middleware(HeadMiddleware)
     app.add_middleware(MetricsMiddleware, metrics=service.metrics)
+    logger = access_logger() if settings.access_log else None
+    app.add_middleware(RequestLogMiddleware, logger=logger)
 
 
 def create_app_from_env() -> FastAPI:

@@ -14,7 +14,9 @@ The mapping from alveary's answers to CoverageJSON domain types:
 Coordinates are CRS84 (longitude, latitude); times are RFC 3339 UTC strings. The ``t``
 axis carries ``bounds``: step ``i`` stands for ``[t[i], t[i + 1])`` of the cube's time axis,
 the last step for as long as the one before it (see :mod:`alveary.query._steps`). Missing
-data is ``null``. Parameters carry an i18n ``observedProperty`` (its ``id`` the CF standard
+data is ``null``; values print as the native encoders print them (a float32 variable as
+the shortest float32 decimal, a packed one with the fewest decimals that give back the
+stored integers). Parameters carry an i18n ``observedProperty`` (its ``id`` the CF standard
 name in the NERC vocabulary when the variable has one) and a ``unit`` whose ``symbol`` is
 for display (``m³/m³``) and whose ``label`` is the UDUNITS string as stored (``m3 m-3``).
 
@@ -35,8 +37,9 @@ import numpy as np
 import orjson
 
 from alveary import grid
+from alveary.api._encode import printable
 from alveary.api._units import unit_symbol
-from alveary.query import CRS84, StatsResult, ZoneResult, format_time, step_bounds
+from alveary.query import CRS84, ResultVariable, StatsResult, ZoneResult, format_time, step_bounds
 
 __all__ = [
     "COVJSON",
@@ -191,7 +194,8 @@ def _time_axis(times: np.ndarray, axis: np.ndarray | None) -> dict[str, Any]:
 def _range(values: np.ndarray, axes: list[str], integer: bool = False) -> dict[str, Any]:
     """An NdArray; NaN becomes ``null`` when encoded (orjson writes NaN as null)."""
     values = np.asarray(values)
-    dtype = np.int64 if integer else np.float64
+    # float32 stays float32, so that it prints as the shortest float32 decimal.
+    dtype = np.int64 if integer else (np.float32 if values.dtype == np.float32 else np.float64)
     data = np.ascontiguousarray(values, dtype=dtype).reshape(-1)
     return {
         "type": "NdArray",
@@ -200,6 +204,14 @@ def _range(values: np.ndarray, axes: list[str], integer: bool = False) -> dict[s
         "shape": list(values.shape),
         "values": data,
     }
+
+
+def _stored(result: ZoneResult, name: str) -> np.ndarray:
+    """A variable's values as the native encoders print them: the shortest decimal that
+    reads back to the stored value (float32, packed integers; see ``printable``)."""
+    info = result.variables.get(name)
+    values = result.values[name]
+    return printable(values, info) if isinstance(info, ResultVariable) else values
 
 
 def _members(result: ZoneResult | StatsResult) -> dict[str, Any]:
@@ -268,7 +280,7 @@ def point_series(result: ZoneResult, *, time_axis: np.ndarray | None = None) -> 
         "type": "Coverage",
         "domain": domain,
         "parameters": {v: covjson_parameter(i) for v, i in result.variables.items()},
-        "ranges": {v: _range(a[:, 0], ["t"]) for v, a in result.values.items()},
+        "ranges": {v: _range(_stored(result, v)[:, 0], ["t"]) for v in result.values},
         **_members(result),
     }
 
@@ -297,7 +309,7 @@ def multi_point_series(
         "type": "Coverage",
         "domain": domain,
         "parameters": {v: covjson_parameter(i) for v, i in result.variables.items()},
-        "ranges": {v: _range(a, ["t", "composite"]) for v, a in result.values.items()},
+        "ranges": {v: _range(_stored(result, v), ["t", "composite"]) for v in result.values},
         **_members(result),
     }
 

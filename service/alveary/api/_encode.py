@@ -144,13 +144,17 @@ def _variables_json(result: ZoneResult | StatsResult) -> dict[str, dict[str, str
 
 
 def _header(result: ZoneResult | StatsResult) -> dict[str, Any]:
-    return {
+    head = {
         "cube": result.cube,
         "version": result.version,
         "level": result.level,
         "variables": _variables_json(result),
         "times": format_time(result.times),
     }
+    note = getattr(result, "note", None)
+    if note:
+        head["note"] = note
+    return head
 
 
 def _blocks(result: ZoneResult, block_rows: int) -> Iterator[slice]:
@@ -247,7 +251,14 @@ def _stats_body(result: StatsResult) -> dict[str, Any]:
 
 
 def _stats_geojson(result: StatsResult, geometry: dict[str, Any] | None) -> bytes:
-    feature = {"type": "Feature", "geometry": geometry, "properties": _stats_body(result)}
+    # ``geometry`` may be a Feature: its geometry is used and its properties are kept,
+    # with the answer's members added (an answer member wins over a posted one).
+    props: dict[str, Any] = {}
+    if geometry is not None and geometry.get("type") == "Feature":
+        props = dict(geometry.get("properties") or {})
+        geometry = geometry.get("geometry")
+    props.update(_stats_body(result))
+    feature = {"type": "Feature", "geometry": geometry, "properties": props}
     return orjson.dumps(feature, option=_JSON_OPTS)
 
 
@@ -369,7 +380,13 @@ def _schema_meta(result: ZoneResult | StatsResult) -> dict[str, str]:
         "level": str(result.level),
         "units": orjson.dumps(units).decode(),
         "variables": orjson.dumps(_variables_json(result)).decode(),
+        **_note(result),
     }
+
+
+def _note(result: ZoneResult | StatsResult) -> dict[str, str]:
+    note = getattr(result, "note", None)
+    return {"note": str(note)} if note else {}
 
 
 def _arrow(table: pa.Table) -> bytes:

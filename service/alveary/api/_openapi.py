@@ -21,7 +21,9 @@ from pathlib import Path
 from typing import Any
 
 from fastapi import FastAPI
+from fastapi.openapi.docs import get_swagger_ui_html
 from fastapi.openapi.utils import get_openapi
+from starlette.responses import FileResponse, HTMLResponse, Response
 
 from alveary import __version__
 from alveary._errors import (
@@ -34,9 +36,9 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
-from alveary.api._schemas import PointsBody, Problem
+from alveary.api._schemas import EdrProblem, PointsBody, Problem
 
-__all__ = ["examples_dir", "install_openapi", "load_examples"]
+__all__ = ["DOCS_ASSETS", "examples_dir", "install_docs", "install_openapi", "load_examples"]
 
 # The problems each operation documents, by error class; the status comes from the one
 # table (alveary._errors.HTTP_STATUS).
@@ -54,6 +56,11 @@ _PROBLEM_TEXT: tuple[tuple[type[AlvearyError], str], ...] = (
 _PROBLEMS = {str(http_status(cls).status): text for cls, text in _PROBLEM_TEXT}
 _GRID_PROBLEMS = tuple(str(http_status(cls).status) for cls in (NotFound, InvalidInput))
 _META_OPS = {"landing", "health", "ready", "metrics"}
+# OGC API - EDR operations answer invalid parameters with 400 (not 422) and the EDR
+# exception body; their documents have no store reads, their queries every fault.
+_EDR_PREFIX = "edr_"
+_EDR_INVALID = "Invalid or unsupported parameter (including one the operation does not define)."
+_EDR_DOCS = {"edr_conformance": ("400",), "edr_collections": ("400",)}
 
 DESCRIPTION = """\
 Spatial and time queries over hexagonal, equal-area data cubes.
@@ -69,7 +76,9 @@ readable text form, and `/zones/{zone}` accepts either.
   numbers in each. Missing data is `null` (JSON), null (Arrow) or an empty field (CSV).
 * Every answer has an ETag (cube version + normalised query) and Cache-Control;
   `If-None-Match` gets 304.
-* Errors are `application/problem+json` (RFC 9457).
+* Errors are `application/problem+json` (RFC 9457). A query parameter an operation does
+  not take is refused (422 naming it), so a typo never goes unnoticed.
+* Every GET also answers HEAD (the same status and headers, no body).
 
 Values are only as good as the data the cubes were built from; for decisions such as
 irrigation or flood response, local authorities and licensed practice decide.
@@ -140,6 +149,19 @@ def _path_value(op: dict[str, Any], path: str, name: str) -> str | None:
     return None
 
 
+def _edr_problems(op_id: str, responses: dict[str, Any]) -> None:
+    """The errors of an EDR operation: 400 for parameters, the rest as on native paths."""
+    invalid = str(http_status(InvalidInput).status)
+    texts = {"400": _EDR_INVALID} | {k: v for k, v in _PROBLEMS.items() if k != invalid}
+    codes = _EDR_DOCS.get(op_id, tuple(texts))
+    ref = {"$ref": "#/components/schemas/EdrProblem"}
+    for code in codes:
+        responses[code] = {
+            "description": texts[code],
+            "content": {"application/problem+json": {"schema": ref}},
+        }
+
+
 def install_openapi(app: FastAPI) -> None:
     """Replace ``app.openapi`` by a generator that adds problems and examples."""
 
@@ -153,7 +175,7 @@ def install_openapi(app: FastAPI) -> None:
             routes=app.routes,
         )
         components = schema.setdefault("components", {}).setdefault("schemas", {})
-        for model in (Problem, PointsBody):
+        for model in (Problem, EdrProblem, PointsBody):
             components[model.__name__] = model.model_json_schema(
                 ref_template="#/components/schemas/{model}"
             )
@@ -164,7 +186,9 @@ def install_openapi(app: FastAPI) -> None:
                 op_id = op.get("operationId", "")
                 responses = op.setdefault("responses", {})
                 responses.pop("422", None)  # FastAPI's own validation schema: replaced below
-                if op_id not in _META_OPS:
+                if op_id.startswith(_EDR_PREFIX):
+                    _edr_problems(op_id, responses)
+                elif op_id not in _META_OPS:
                     codes = _GRID_PROBLEMS if path.startswith("/zones") else tuple(_PROBLEMS)
                     for code in codes:
                         responses[code] = {
@@ -178,3 +202,40 @@ def install_openapi(app: FastAPI) -> None:
         return schema
 
     app.openapi = build  # type: ignore[method-assign]
+
+
+# The API documentation page's assets, vendored from the npm package swagger-ui-dist (see
+# static/vendor/README.txt) and served by the service itself: /docs needs no internet.
+_VENDOR = Path(__file__).resolve().parent / "static" / "vendor" / "swagger-ui"
+DOCS_ASSETS = {
+    "swagger-ui-bundle.js": "text/javascript; charset=utf-8",
+    "swagger-ui.css": "text/css; charset=utf-8",
+    "favicon-32x32.png": "image/png",
+    "LICENSE.txt": "text/plain; charset=utf-8",
+    "NOTICE.txt": "text/plain; charset=utf-8",
+}
+
+
+def install_docs(app: FastAPI, openapi_url: str = "/openapi.json") -> None:
+    """``/docs``: the interactive documentation, every asset served from ``/docs/assets``."""
+
+    @app.get("/docs", include_in_schema=False)
+    async def docs() -> HTMLResponse:
+        return get_swagger_ui_html(
+            openapi_url=openapi_url,
+            title="alveary - API documentation",
+            swagger_js_url="/docs/assets/swagger-ui-bundle.js",
+            swagger_css_url="/docs/assets/swagger-ui.css",
+            swagger_favicon_url="/docs/assets/favicon-32x32.png",
+        )
+
+    @app.get("/docs/assets/{name}", include_in_schema=False)
+    async def docs_asset(name: str) -> Response:
+        media = DOCS_ASSETS.get(name)
+        if media is None:
+            return Response(status_code=404)
+        return FileResponse(
+            _VENDOR / name,
+            media_type=media,
+            headers={"Cache-Control": "public, max-age=86400"},
+        )

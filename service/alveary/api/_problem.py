@@ -1,9 +1,11 @@
 """Errors as application/problem+json (RFC 9457), with status and title from the one table
 (:data:`alveary._errors.HTTP_STATUS`).
 
-Every error a client sees is a problem document with ``type``, ``title``, ``status`` and
-``detail``; input errors also name the ``parameter``, the offending ``value`` and what is
-``allowed``; limit errors name the ``limit``, the ``requested`` amount and the ``maximum``.
+Every error a client sees is a problem document with ``type``, ``title``, ``status``,
+``detail`` and the ``request_id`` of the request (also its ``X-Request-Id`` header);
+input errors also name the ``parameter``, the offending ``value`` and what is
+``allowed``; limit errors name the ``limit``, the ``requested`` amount and the
+``maximum``.
 Nothing else is passed on: no stack trace, no internal path, no store URL or credential.
 """
 
@@ -32,6 +34,7 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
+from alveary.api._requestlog import REQUEST_ID
 
 __all__ = ["PROBLEM", "domain_response", "install_handlers", "problem_response"]
 
@@ -64,6 +67,9 @@ def problem_response(
         "detail": detail,
     }
     body.update({k: _jsonable(v) for k, v in members.items() if v is not None})
+    request_id = REQUEST_ID.get()
+    if request_id is not None:
+        body["request_id"] = request_id
     content = orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS)
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 
@@ -101,9 +107,12 @@ def domain_response(exc: AlvearyError, retry_after: int) -> Response:
             limit=exc.limit,
             requested=exc.requested,
             maximum=exc.maximum,
+            finest_level=exc.finest_level,
         )
     if isinstance(exc, NotFound):
-        return problem_response(status, title, exc.message, kind=exc.kind, name=str(exc.name))
+        return problem_response(
+            status, title, exc.message, kind=exc.kind, name=str(exc.name), **exc.members
+        )
     if isinstance(exc, RateLimited):
         return problem_response(
             status,

@@ -4,11 +4,14 @@ object from its parameters and hands it to :meth:`Service.answer`."""
 from __future__ import annotations
 
 from typing import Any
+from urllib.parse import parse_qsl
 
 import numpy as np
 import orjson
-from fastapi import APIRouter, Request
+from fastapi import APIRouter, Depends, Request
 from starlette.responses import Response
+from starlette.routing import Route
+from starlette.types import Receive, Scope, Send
 
 from alveary._errors import InvalidInput, LimitExceeded
 from alveary.api._answers import request_key
@@ -44,8 +47,10 @@ from alveary.api.deps import (
     StatsDep,
     VarsParam,
     ZoneParam,
+    known_parameters,
     make_selection,
 )
+from alveary.grid import MAX_LEVEL
 from alveary.query import (
     BboxQuery,
     DiskQuery,
@@ -60,9 +65,9 @@ from alveary.query import (
     parse_zone,
 )
 
-__all__ = ["router"]
+__all__ = ["PointLane", "install_point_lane", "router"]
 
-router = APIRouter(tags=["cubes"])
+router = APIRouter(tags=["cubes"], dependencies=[Depends(known_parameters())])
 
 _OTHER_FORMATS: dict[int | str, dict[str, Any]] = {
     200: {
@@ -331,11 +336,26 @@ async def query_polygon(
 ) -> Response:
     body = await _json_body(request)
     area = parse_polygon(body, service.limits.max_polygon_vertices)
-    query = PolygonQuery(area, stats, sel)
-    geometry = area.geometry if stats and fmt == "geojson" else None
+    props = _feature_properties(body)
+    text = orjson.dumps(props, option=orjson.OPT_SORT_KEYS).decode() if props else ""
+    query = PolygonQuery(area, stats, sel, properties=text)
+    geometry: dict[str, Any] | None = None
+    if stats and fmt == "geojson":
+        # The polygon as read (RFC 7946: exterior rings counter-clockwise, cut at the
+        # antimeridian), as a Feature keeping the posted Feature's properties.
+        geometry = {"type": "Feature", "geometry": area.geometry, "properties": props or {}}
     return await service.answer(
         cube, query, fmt, if_none_match, credentials=credentials, geometry=geometry
     )
+
+
+def _feature_properties(body: Any) -> dict[str, Any] | None:
+    """A posted Feature's properties (None for a bare geometry or null properties)."""
+    if isinstance(body, dict) and body.get("type") == "Feature":
+        props = body.get("properties")
+        if isinstance(props, dict) and props:
+            return props
+    return None
 
 
 @router.post(
@@ -388,3 +408,111 @@ def _keys(body: Any) -> str:
     if isinstance(body, dict):
         return "an object with keys " + ",".join(sorted(map(str, body)))[:100]
     return type(body).__name__
+
+
+# -- the point lane -------------------------------------------------------------------------
+#
+# A field app sends a new point with every GPS fix, so point answers are rarely repeats:
+# each one pays for routing and parameter handling. The lane answers a well-formed point
+# request with the same work as query_point minus FastAPI's generic parameter machinery;
+# anything it does not recognise at a glance (an unknown or repeated parameter, a value
+# out of range or not a number, a format it does not name) is handed to query_point
+# itself, so every error is exactly the documented one.
+
+_POINT_KEYS = frozenset({"lat", "lon", "level", "vars", "datetime", "f"})
+
+
+def _finite_in(text: str, low: float, high: float) -> float | None:
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return value if low <= value <= high else None  # NaN fails both comparisons
+
+
+def _point_args(scope: Scope) -> dict[str, Any] | None:
+    """The point parameters if they are plainly valid, else None (the route decides)."""
+    raw = scope.get("query_string", b"")
+    try:
+        pairs = parse_qsl(raw.decode("latin-1"), keep_blank_values=True, strict_parsing=True)
+    except ValueError:
+        return None
+    args = dict(pairs)
+    if len(args) != len(pairs) or not args.keys() <= _POINT_KEYS:
+        return None
+    lat = _finite_in(args.get("lat", ""), -90.0, 90.0)
+    lon = _finite_in(args.get("lon", ""), -180.0, 180.0)
+    if lat is None or lon is None:
+        return None
+    level = args.get("level")
+    if level is not None and not (level.isdigit() and int(level) <= MAX_LEVEL):
+        return None
+    f = args.get("f")
+    if f is not None and f not in CUBE_FORMATS:
+        return None
+    if len(args.get("vars", "")) > 1000 or len(args.get("datetime", "")) > 100:
+        return None
+    return {
+        "lat": lat,
+        "lon": lon,
+        "level": None if level is None else int(level),
+        "vars": args.get("vars"),
+        "datetime": args.get("datetime"),
+        "f": f,
+    }
+
+
+def _header(scope: Scope, name: bytes) -> str | None:
+    for key, value in scope.get("headers", ()):
+        if key == name:
+            return str(value.decode("latin-1"))
+    return None
+
+
+class PointLane:
+    """An ASGI app for ``GET /cubes/{cube}/point``, placed before the routers."""
+
+    def __init__(self) -> None:
+        self._route: Any = None
+
+    def _query_point_route(self, app: Any) -> Any:
+        if self._route is None:
+            stack = list(app.router.routes)
+            while stack:
+                route = stack.pop(0)
+                inner = getattr(route, "original_router", None)
+                if inner is not None:
+                    stack[:0] = list(inner.routes)
+                elif getattr(route, "operation_id", None) == "query_point":
+                    self._route = route
+                    break
+        return self._route
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        args = _point_args(scope)
+        if args is None:
+            route = self._query_point_route(scope["app"])
+            scope["route"] = route
+            await route.handle(scope, receive, send)
+            return
+        scope["alveary.operation"] = "query_point"
+        service: Service = scope["app"].state.service
+        sel = make_selection(args["level"], args["vars"], args["datetime"])
+        fmt = negotiate(args["f"], _header(scope, b"accept"), CUBE_FORMATS)
+        query = PointQuery(args["lat"], args["lon"], sel)
+        cube = scope["path_params"]["cube"]
+        credentials = await service.credentials(scope)
+        response = await service.answer(
+            cube,
+            query,
+            fmt,
+            _header(scope, b"if-none-match"),
+            credentials=credentials,
+            key=request_key(scope),
+        )
+        await response(scope, receive, send)
+
+
+def install_point_lane(app: Any) -> None:
+    """Put the point lane in front of the routers (call before including them)."""
+    app.router.routes.append(Route("/cubes/{cube}/point", PointLane(), methods=["GET"]))

@@ -3,41 +3,55 @@
 from __future__ import annotations
 
 import orjson
-from fastapi import APIRouter
+from fastapi import APIRouter, Depends, Request
 from starlette.responses import Response
 
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
+from alveary.api._edr_docs import landing_page
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import CredentialsDep, ServiceDep
+from alveary.api.deps import CredentialsDep, ServiceDep, known_parameters
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["service"])
+router = APIRouter(tags=["service"], dependencies=[Depends(known_parameters())])
 
 _HEALTHY = orjson.dumps({"status": "ok"})
+_DESCRIPTION = "Spatial and time queries over hexagonal, equal-area data cubes"
+_OPENAPI_30_LINK = {
+    "href": "/openapi-3.0.json",
+    "rel": "service-desc",
+    "type": "application/vnd.oai.openapi+json;version=3.0",
+    "title": "The API definition (OpenAPI 3.0, for clients that read only 3.0)",
+}
+_CUBES_LINK = {
+    "href": "/cubes",
+    "rel": "data",
+    "type": "application/json",
+    "title": "Cubes (the native API)",
+}
 _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 
 
 @router.get(
-    "/", operation_id="landing", summary="Landing page: links and version", response_model=Landing
+    "/",
+    operation_id="landing",
+    summary="Landing page: links to the API definition, conformance, collections and cubes",
+    response_model=Landing,
 )
-async def landing(service: ServiceDep) -> Response:
-    body = {
-        "title": "alveary",
-        "description": "Spatial and time queries over hexagonal, equal-area data cubes.",
-        "version": __version__,
-        "links": [
-            {"href": "/", "rel": "self", "type": "application/json"},
-            {"href": "/cubes", "rel": "data", "type": "application/json", "title": "Cubes"},
-            {
-                "href": "/openapi.json",
-                "rel": "service-desc",
-                "type": "application/vnd.oai.openapi+json;version=3.1",
-            },
-            {"href": "/docs", "rel": "service-doc", "type": "text/html"},
-        ],
-    }
+async def landing(request: Request) -> Response:
+    # One landing page for both APIs: OGC API - EDR's links (service-desc, service-doc,
+    # conformance, data -> /collections) and the native /cubes. EDR's landing-page schema
+    # has no member for a version, so it is part of the description. Links are absolute
+    # (from the request's base URL): some clients (OWSLib's api()) follow them as given.
+    base = str(request.base_url).rstrip("/")
+    extra = [{**link, "href": base + link["href"]} for link in (_OPENAPI_30_LINK, _CUBES_LINK)]
+    body = landing_page(
+        base,
+        title="alveary",
+        description=f"{_DESCRIPTION} (alveary {__version__}).",
+        extra_links=extra,
+    )
     return Response(orjson.dumps(body), media_type="application/json")
 
 

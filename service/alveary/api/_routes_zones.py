@@ -2,22 +2,34 @@
 
 from __future__ import annotations
 
+import io
 from typing import Annotated, Any
 
 import numpy as np
 import orjson
-from fastapi import APIRouter, Query
+import pyarrow as pa
+import pyarrow.csv as pacsv
+import shapely
+from fastapi import APIRouter, Depends, Query
 from starlette.responses import Response
 
 from alveary import grid
 from alveary._errors import InvalidInput, NotFound
+from alveary.api._encode import FORMATS
 from alveary.api._schemas import ZoneInfo
-from alveary.api.deps import LatParam, LonParam, ServiceDep, ZoneFormatDep, ZonePath
+from alveary.api.deps import (
+    LatParam,
+    LonParam,
+    ServiceDep,
+    ZoneFormatDep,
+    ZonePath,
+    known_parameters,
+)
 from alveary.query import parse_zone
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["grid"])
+router = APIRouter(tags=["grid"], dependencies=[Depends(known_parameters())])
 
 RequiredLevel = Annotated[
     int, Query(ge=0, le=grid.MAX_LEVEL, description="Refinement level.", examples=[9])
@@ -25,8 +37,18 @@ RequiredLevel = Annotated[
 
 _GEOJSON: dict[int | str, dict[str, Any]] = {
     200: {
-        "description": "The zone. JSON by default; a GeoJSON Feature by Accept or f.",
-        "content": {"application/geo+json": {"schema": {"type": "object"}}},
+        "description": (
+            "The zone. JSON by default; by Accept or f a GeoJSON Feature, or one row as an "
+            "Arrow IPC stream or CSV (outline as WKT; neighbours and children as lists, "
+            "in CSV as space-separated ids)."
+        ),
+        "content": {
+            "application/geo+json": {"schema": {"type": "object"}},
+            "application/vnd.apache.arrow.stream": {
+                "schema": {"type": "string", "format": "binary"}
+            },
+            "text/csv": {"schema": {"type": "string"}},
+        },
     }
 }
 
@@ -71,7 +93,57 @@ def zone_info(zone: int) -> dict[str, Any]:
     }
 
 
+def zone_table(info: dict[str, Any]) -> pa.Table:
+    """One zone as one table row: the JSON answer's fields, the outline as WKT."""
+    parent = info["parent"]
+    kids = info["children"]
+    cols: dict[str, pa.Array] = {
+        "zone": pa.array([info["zone"]], pa.uint64()),
+        "zone_text": pa.array([info["zone_text"]], pa.string()),
+        "level": pa.array([info["level"]], pa.int8()),
+        "pentagon": pa.array([info["pentagon"]], pa.bool_()),
+        "area_m2": pa.array([info["area_m2"]], pa.float64()),
+        "lat": pa.array([info["centre"]["lat"]], pa.float64()),
+        "lon": pa.array([info["centre"]["lon"]], pa.float64()),
+        "parent": pa.array([None if parent is None else parent["zone"]], pa.uint64()),
+        "neighbours": pa.array([[n["zone"] for n in info["neighbours"]]], pa.list_(pa.uint64())),
+        "children": pa.array([[c["zone"] for c in kids]], pa.list_(pa.uint64())),
+        "children_weight": pa.array([[c["weight"] for c in kids]], pa.list_(pa.float64())),
+        "geometry": pa.array([shapely.geometry.shape(info["geometry"]).wkt], pa.string()),
+    }
+    meta = {"geometry": "WKT, longitude latitude (EPSG:4326)", "area_m2": "m2"}
+    return pa.table(cols).replace_schema_metadata(meta)
+
+
+def _zone_csv(table: pa.Table) -> bytes:
+    cols = []
+    for name in table.column_names:
+        col = table.column(name)
+        if pa.types.is_list(col.type):
+            text = [
+                " ".join(repr(v) if isinstance(v, float) else str(v) for v in row or [])
+                for row in col.to_pylist()
+            ]
+            col = pa.array(text, pa.string())
+        cols.append(col)
+    out = io.BytesIO()
+    plain = pa.Table.from_arrays(cols, names=table.column_names)
+    pacsv.write_csv(plain, out, pacsv.WriteOptions(quoting_style="needed"))
+    return out.getvalue()
+
+
+def _zone_arrow(table: pa.Table) -> bytes:
+    sink = pa.BufferOutputStream()
+    with pa.ipc.new_stream(sink, table.schema) as writer:
+        writer.write_table(table)
+    return bytes(sink.getvalue().to_pybytes())
+
+
 def _encode(info: dict[str, Any], fmt: str, headers: dict[str, str]) -> Response:
+    if fmt == "arrow":
+        return Response(_zone_arrow(zone_table(info)), media_type=FORMATS["arrow"], headers=headers)
+    if fmt == "csv":
+        return Response(_zone_csv(zone_table(info)), media_type=FORMATS["csv"], headers=headers)
     if fmt == "geojson":
         props = {k: v for k, v in info.items() if k != "geometry"}
         body = {

@@ -9,6 +9,7 @@ from pydantic import BaseModel, ConfigDict, Field
 __all__ = [
     "CubeList",
     "CubeMeta",
+    "EdrProblem",
     "Landing",
     "PointsBody",
     "Problem",
@@ -32,8 +33,7 @@ class Link(BaseModel):
 
 class Landing(BaseModel):
     title: str
-    description: str
-    version: str
+    description: str = Field(description="What the service offers, and its version.")
     links: list[Link]
 
 
@@ -86,6 +86,13 @@ class ZonesAnswer(BaseModel):
     variables: dict[str, VariableMeta]
     times: list[str] = Field(description="The selected time steps, RFC 3339 UTC.")
     zones: list[ZoneRow]
+    note: str | None = Field(
+        None,
+        description=(
+            "Present when the answer needs a word of explanation, e.g. a `nearest` radius "
+            "query that found no zone with data."
+        ),
+    )
 
 
 class StatsAnswer(BaseModel):
@@ -142,6 +149,14 @@ class Problem(_Open):
     limit: str | None = None
     requested: float | None = None
     maximum: float | None = None
+
+
+class EdrProblem(Problem):
+    """An error on an OGC API - EDR path: the EDR exception (``code``, ``description``)
+    and the problem+json members in one document."""
+
+    code: str = Field(description="EDR exception code, e.g. InvalidParameterValue.")
+    description: str = Field(description="What went wrong (the same text as detail).")
 
 
 class Ready(BaseModel):

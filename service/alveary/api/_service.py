@@ -3,6 +3,8 @@
 :class:`Service` holds the catalogue, the chunk cache, the limits and the metrics; its
 :meth:`Service.answer` is the path every cube query takes: access -> resolve (no I/O) ->
 ETag -> 304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+The native API encodes with :func:`alveary.api._encode.encode`; another surface (OGC API -
+EDR) passes its own :data:`Encoder`, and takes the same path otherwise.
 
 Access: every route reaches a cube through :meth:`Service.cube_for` (or lists cubes with
 :meth:`Service.cubes_for`), with the request's :class:`Credentials` from
@@ -16,7 +18,7 @@ import asyncio
 import contextlib
 import logging
 import time
-from collections.abc import AsyncIterator, Iterator
+from collections.abc import AsyncIterator, Callable, Iterator
 from typing import Any
 
 import anyio
@@ -43,6 +45,7 @@ from alveary.cube import ChunkCache
 from alveary.query import (
     BboxQuery,
     Catalog,
+    CubeSnapshot,
     CubeSource,
     Plan,
     PointQuery,
@@ -57,7 +60,7 @@ from alveary.query import (
     resolve,
 )
 
-__all__ = ["Service"]
+__all__ = ["Encoder", "Service"]
 
 log = logging.getLogger("alveary.api")
 
@@ -70,6 +73,10 @@ _INLINE_ROWS = 2_000
 _SMALL_CELLS = 20_000
 # Seconds /readyz may take; past it the answer is "not ready".
 READY_DEADLINE = 2.0
+
+#: An answer's encoder: (result, the resolved query) -> (body, media type), or None when
+#: the answer is to be "204 No Content" (no body, nothing cached).
+Encoder = Callable[[ZoneResult | StatsResult, Resolved], tuple[bytes, str] | None]
 
 
 class Service:
@@ -172,6 +179,17 @@ class Service:
         except AlvearyError:  # unknown, or not reachable yet
             return None
 
+    def served(self, cube_id: str, credentials: Credentials) -> tuple[CubeSource, CubeSnapshot]:
+        """One cube's configuration and the version it serves now, through the access
+        check: NotFound if unknown or not readable, StoreUnavailable if not open yet."""
+        source = self.source_for(cube_id, credentials)
+        return source, self.cube_for(cube_id, credentials).snapshot()
+
+    def served_all(self, credentials: Credentials) -> list[tuple[CubeSource, CubeSnapshot]]:
+        """Every cube these credentials may read that can be reached now, with the
+        version it serves."""
+        return [(s, c.snapshot()) for s, c in self.cubes_for(credentials) if c is not None]
+
     async def answer(
         self,
         cube_id: str,
@@ -182,12 +200,18 @@ class Service:
         credentials: Credentials,
         geometry: dict[str, Any] | None = None,
         key: str | None = None,
+        encoder: Encoder | None = None,
+        operation: str | None = None,
     ) -> Response:
         """Run one cube query end to end and build the HTTP response.
 
         ``credentials`` are the request's (:meth:`credentials`): a cube they may not read
-        is not found. ``key`` is the raw request's cache key (GET requests), for the
-        answer front.
+        is not found. ``fmt`` names the encoding (part of the ETag). ``key`` is the raw
+        request's cache key (GET requests), for the answer front. ``encoder`` replaces
+        the native encoders (``fmt`` must then name what it writes; such answers are
+        encoded whole, not streamed); when it returns None the answer is 204 with no
+        body. ``operation`` names the operation in the metrics of answers served from
+        the cache (default ``query_<op>``).
         """
         self.cube_for(cube_id, credentials)
         resolved = resolve(self.catalog, cube_id, query)
@@ -214,6 +238,12 @@ class Service:
             except (StoreUnavailable, ChunkDecodeError) as exc:
                 self.note_fault(cube_id, exc)
                 raise
+            if encoder is not None:
+                written = await self._custom(encoder, result, resolved, deadline_at)
+                if written is None:
+                    return Response(status_code=204, headers=headers)
+                body, media = written
+                return self._keep(query, resolved, etag, body, media, key, operation, headers)
             rows = result.rows if isinstance(result, ZoneResult) else 0
             if rows > self.settings.stream_rows:
                 blocks, media = encode_blocks(result, fmt, geometry=geometry)
@@ -227,9 +257,23 @@ class Service:
         finally:
             if not handed_over:
                 self.gate.release(weight)
-        if caching:
-            operation = f"query_{query.op}"
-            answer = Answer(cube_id, resolved.version, etag, body, media, operation)
+        return self._keep(query, resolved, etag, body, media, key, operation, headers)
+
+    def _keep(
+        self,
+        query: Query,
+        resolved: Resolved,
+        etag: str,
+        body: bytes,
+        media: str,
+        key: str | None,
+        operation: str | None,
+        headers: dict[str, str],
+    ) -> Response:
+        """Keep an encoded answer in the answer cache (if on) and send it."""
+        if self.answers.max_bytes > 0:
+            name = operation or f"query_{query.op}"
+            answer = Answer(resolved.cube_id, resolved.version, etag, body, media, name)
             self.answers.put_answer(answer, key)
         return Response(body, media_type=media, headers=headers)
 
@@ -298,6 +342,23 @@ class Service:
             return await anyio.to_thread.run_sync(
                 lambda: encode(result, fmt, geometry=geometry), abandon_on_cancel=True
             )
+        assert scope.cancelled_caught
+        raise DeadlineExceeded("the request ran past its deadline while encoding")
+
+    async def _custom(
+        self,
+        encoder: Encoder,
+        result: ZoneResult | StatsResult,
+        resolved: Resolved,
+        deadline_at: float,
+    ) -> tuple[bytes, str] | None:
+        """An encoder hook's answer, as :meth:`_encode` (inline if small, else in a worker
+        thread within the deadline)."""
+        rows = result.rows if isinstance(result, ZoneResult) else 0
+        if rows <= _INLINE_ROWS:
+            return encoder(result, resolved)
+        with anyio.move_on_after(max(0.0, deadline_at - time.monotonic())) as scope:
+            return await anyio.to_thread.run_sync(encoder, result, resolved, abandon_on_cancel=True)
         assert scope.cancelled_caught
         raise DeadlineExceeded("the request ran past its deadline while encoding")
 

@@ -139,6 +139,9 @@ class Settings(BaseSettings):
     max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
     max_body_bytes: int = Field(8 * 2**20, ge=1024)
 
+    access_log: bool = Field(
+        True, description="One JSON line per request on the alveary.access logger (stderr)."
+    )
     rate_limit_rps: float = Field(
         0.0, ge=0, description="Requests per second per client (API key or address); 0: off."
     )

@@ -6,10 +6,13 @@ and an example, so every operation documents it the same way.
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+import re
+from collections.abc import Awaitable, Callable
+from typing import Annotated, Any, Literal
 
-from fastapi import Depends, Header, Path, Query, Request
+from fastapi import Depends, Header, HTTPException, Path, Query, Request
 
+from alveary._errors import InvalidInput
 from alveary.api._access import Credentials
 from alveary.api._encode import negotiate
 from alveary.api._service import Service
@@ -37,6 +40,8 @@ __all__ = [
     "ZoneFormat",
     "ZoneParam",
     "ZonePath",
+    "declared_query_parameters",
+    "known_parameters",
 ]
 
 
@@ -159,7 +164,7 @@ StatsParam = Annotated[
     ),
 ]
 CubeFormat = Literal["json", "geojson", "arrow", "csv"]
-ZoneFormat = Literal["json", "geojson"]
+ZoneFormat = Literal["json", "geojson", "arrow", "csv"]
 FormatParam = Annotated[
     CubeFormat | None,
     Query(description="Output format; overrides the Accept header."),
@@ -172,9 +177,27 @@ AcceptHeader = Annotated[str | None, Header(include_in_schema=False)]
 IfNoneMatch = Annotated[str | None, Header(include_in_schema=False)]
 
 
+# An offset whose '+' arrived as a space: "...T10:00:00 02:00" (or " 0200", " 02").
+_SPACED_OFFSET = re.compile(r"\d \d{2}(:?\d{2})?(/|$)")
+
+
+def read_datetime(text: str | None) -> Any:
+    """``datetime`` parsed; an offset whose ``+`` came through as a space gets a hint."""
+    try:
+        return parse_datetime(text)
+    except InvalidInput as exc:
+        if text is not None and _SPACED_OFFSET.search(text):
+            allowed = (exc.allowed or "an RFC 3339 instant or interval") + (
+                "; a '+' in a URL query string reads as a space: write it as %2B "
+                "(e.g. 2025-06-01T10:00:00%2B02:00)"
+            )
+            raise InvalidInput("datetime", text, allowed) from None
+        raise
+
+
 def make_selection(level: int | None, vars_: str | None, time: str | None) -> Selection:
     """Level, variables and time of a cube query, from their parameters."""
-    return Selection(level=level, variables=parse_vars(vars_), time=parse_datetime(time))
+    return Selection(level=level, variables=parse_vars(vars_), time=read_datetime(time))
 
 
 async def selection(
@@ -188,6 +211,7 @@ SelectionDep = Annotated[Selection, Depends(selection)]
 
 
 CUBE_FORMATS = ("json", "geojson", "arrow", "csv")
+ZONE_FORMATS = CUBE_FORMATS  # /zones answers in every format too
 
 
 async def cube_format(f: FormatParam = None, accept: AcceptHeader = None) -> str:
@@ -195,7 +219,7 @@ async def cube_format(f: FormatParam = None, accept: AcceptHeader = None) -> str
 
 
 async def zone_format(f: ZoneFormatParam = None, accept: AcceptHeader = None) -> str:
-    return negotiate(f, accept, ("json", "geojson"))
+    return negotiate(f, accept, ZONE_FORMATS)
 
 
 FormatDep = Annotated[str, Depends(cube_format)]
@@ -207,3 +231,57 @@ async def stats_names(stats: StatsParam = None) -> tuple[str, ...]:
 
 
 StatsDep = Annotated[tuple[str, ...], Depends(stats_names)]
+
+
+# -- unknown query parameters ---------------------------------------------------------------
+
+_DECLARED: dict[int, frozenset[str]] = {}
+
+
+def declared_query_parameters(route: Any) -> frozenset[str]:
+    """The query parameter names (aliases) a route declares, its dependencies' included."""
+    key = id(route)
+    names = _DECLARED.get(key)
+    if names is None:
+        found: set[str] = set()
+        stack = [getattr(route, "dependant", None)]
+        while stack:
+            dependant = stack.pop()
+            if dependant is None:
+                continue
+            found.update(p.alias for p in dependant.query_params)
+            stack.extend(dependant.dependencies)
+        names = frozenset(found)
+        _DECLARED[key] = names
+    return names
+
+
+def known_parameters(status: int = 422) -> Callable[[Request], Awaitable[None]]:
+    """A dependency refusing query parameters the matched route does not declare.
+
+    Put it on a router (``APIRouter(dependencies=[Depends(known_parameters())])``): each
+    route's own parameters, its dependencies' included, are read from the route itself,
+    so the check needs no list of its own. A typo such as ``variables=`` for ``vars=``
+    is refused instead of silently ignored. ``status`` 422 (the native routes) raises
+    :class:`alveary.InvalidInput`, answered as problem+json naming the parameter and the
+    allowed names; any other status (400 for OGC API routes, whose standards ask for it)
+    raises an ``HTTPException`` with the same message as its detail.
+    """
+
+    async def check(request: Request) -> None:
+        route = request.scope.get("route")
+        if route is None:
+            return
+        allowed = declared_query_parameters(route)
+        unknown = [k for k in dict.fromkeys(request.query_params.keys()) if k not in allowed]
+        if not unknown:
+            return
+        names = ", ".join(sorted(allowed)) or "none"
+        message = f"unknown query parameter {unknown[0]!r}; this operation takes: {names}"
+        value = request.query_params[unknown[0]]
+        error = InvalidInput(unknown[0], value, f"parameters: {names}", message=message)
+        if status == 422:
+            raise error
+        raise HTTPException(status_code=status, detail=error.message)
+
+    return check

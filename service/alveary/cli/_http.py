@@ -20,6 +20,8 @@ from typing import Any
 from uvicorn.config import LOGGING_CONFIG
 from uvicorn.protocols.http.h11_impl import H11Protocol
 
+from alveary.api import RequestIdFilter
+
 __all__ = ["HeaderDeadlineProtocol", "configure_headers", "log_config"]
 
 log = logging.getLogger("alveary.api")
@@ -79,12 +81,28 @@ def log_config(level: str) -> dict[str, Any]:
     on standard error with time, level and logger name."""
     config = copy.deepcopy(LOGGING_CONFIG)
     config["formatters"]["alveary"] = {
-        "format": "%(asctime)s %(levelname)s %(name)s %(message)s",
+        # request: " request=<id>" inside a request (the id of its X-Request-Id), else ""
+        "format": "%(asctime)s %(levelname)s %(name)s %(message)s%(request)s",
     }
+    config.setdefault("filters", {})["alveary_request"] = {"()": RequestIdFilter}
     config["handlers"]["alveary"] = {
         "formatter": "alveary",
+        "filters": ["alveary_request"],
         "class": "logging.StreamHandler",
         "stream": "ext://sys.stderr",
+    }
+    # The request log: bare JSON lines (alveary.api's RequestLogMiddleware), whatever
+    # the level of the rest; off with ALVEARY_ACCESS_LOG=false.
+    config["formatters"]["alveary_access"] = {"format": "%(message)s"}
+    config["handlers"]["alveary_access"] = {
+        "formatter": "alveary_access",
+        "class": "logging.StreamHandler",
+        "stream": "ext://sys.stderr",
+    }
+    config["loggers"]["alveary.access"] = {
+        "handlers": ["alveary_access"],
+        "level": "INFO",
+        "propagate": False,
     }
     config["loggers"]["alveary"] = {
         "handlers": ["alveary"],

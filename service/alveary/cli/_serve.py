@@ -127,6 +127,7 @@ def serve(overrides: dict[str, Any]) -> int:
         port=settings.port,
         log_level=settings.log_level,
         log_config=log_config(settings.log_level),
+        access_log=not settings.access_log,  # the service writes its own JSON request log
         proxy_headers=False,
         # Slow or idle clients cannot hold the server: request headers within
         # header_timeout, idle keep-alive connections closed after keep_alive_timeout,

@@ -126,7 +126,7 @@ class _Operations(Generic[R]):
         raise NotImplementedError
 
     def landing(self) -> R:
-        """Links and version (``GET /``)."""
+        """Links: API definition, conformance, collections, cubes (``GET /``)."""
         return self._send(_Call("GET", "/"))
 
     def cubes(self) -> R:

@@ -8,7 +8,7 @@ a new version (fresh, or inheriting the published one's chunks to append),
 pure: :meth:`Cube.plan` names the exact chunks a read fetches without touching the store.
 """
 
-from alveary.cube._cache import ByteLRU, ChunkCache, IOStats, io_totals
+from alveary.cube._cache import ByteLRU, ChunkCache, IOStats, io_totals, request_io
 from alveary.cube._checksum import is_checksum_error
 from alveary.cube._layout import (
     DEFAULT_SPATIAL_BLOCK,
@@ -59,6 +59,7 @@ __all__ = [
     "open_cube",
     "parse_time",
     "plan_cells",
+    "request_io",
     "rollback",
     "to_times",
 ]

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import threading
 from collections.abc import Callable, Hashable
+from contextvars import ContextVar
 from typing import Generic, TypeVar
 
 import cachetools
@@ -12,7 +13,7 @@ import numpy as np
 
 from alveary._errors import InvalidInput
 
-__all__ = ["ByteLRU", "ChunkCache", "IOStats", "io_totals"]
+__all__ = ["ByteLRU", "ChunkCache", "IOStats", "io_totals", "request_io"]
 
 
 K = TypeVar("K", bound=Hashable)
@@ -212,3 +213,7 @@ class IOStats:
 
 #: Totals over every cube opened in this process (what ``/metrics`` can export).
 io_totals = IOStats()
+
+#: The counters of the request being served, if its caller set them (the HTTP layer does,
+#: for its request log); store reads made on the request's behalf also count there.
+request_io: ContextVar[IOStats | None] = ContextVar("alveary_request_io", default=None)

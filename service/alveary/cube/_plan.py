@@ -144,6 +144,10 @@ def _strip_groups(
         return []
     rb, cb, di, dj = layout.spatial_chunk(i, j)
     _, _, nr, nc = layout.chunk_grid
+    if region.size == 1:  # one zone (a point query): one chunk, nothing to group
+        chunk = (int(region[0]), int(rb[0]), int(cb[0]))
+        cells = (np.zeros(1, np.int64), di, dj)
+        return [("strips", chunk, pos, cells, layout.strip_chunk_nbytes(itemsize))]
     sid = (region * nr + rb) * nc + cb
     order = np.argsort(sid, kind="stable")
     uniq, starts = np.unique(sid[order], return_index=True)

@@ -20,7 +20,7 @@ from zarr.core.buffer import Buffer, BufferPrototype, default_buffer_prototype
 from zarr.storage import FsspecStore, LocalStore, WrapperStore
 
 from alveary._errors import InvalidInput, NotFound, StoreUnavailable
-from alveary.cube._cache import IOStats, io_totals
+from alveary.cube._cache import IOStats, io_totals, request_io
 
 __all__ = [
     "CountingStore",
@@ -132,6 +132,9 @@ class CountingStore(WrapperStore[Store]):
         n = None if value is None else len(value)
         for sink in self.sinks:
             sink.add(key, n)
+        per_request = request_io.get()
+        if per_request is not None:
+            per_request.add(key, n)
         return value
 
 

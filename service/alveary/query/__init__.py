@@ -9,7 +9,14 @@ is written down as the protocols :class:`ServedCube` and :class:`CubeSnapshot`.
 
 from alveary.query._catalog import Catalog, CubeSource
 from alveary.query._cube import CubeSnapshot, ServedCube
-from alveary.query._edr_params import CRS84, WITHIN_UNITS
+from alveary.query._edr_params import (
+    CRS84,
+    WITHIN_UNITS,
+    check_crs,
+    check_z,
+    parse_parameter_names,
+    within_metres,
+)
 from alveary.query._execute import execute
 from alveary.query._geometry import Area, bbox_area, parse_bbox, parse_polygon
 from alveary.query._models import (
@@ -29,6 +36,7 @@ from alveary.query._result import ResultVariable, StatsResult, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._steps import select_steps, step_bounds
 from alveary.query._time import TimeSpec, format_time, parse_datetime, select_times
+from alveary.query._wkt import coords_area, coords_lat_lon, parse_coords
 
 __all__ = [
     "CRS84",
@@ -55,11 +63,17 @@ __all__ = [
     "TimeSpec",
     "ZoneResult",
     "bbox_area",
+    "check_crs",
+    "check_z",
+    "coords_area",
+    "coords_lat_lon",
     "execute",
     "format_time",
     "make_plan",
     "parse_bbox",
+    "parse_coords",
     "parse_datetime",
+    "parse_parameter_names",
     "parse_polygon",
     "parse_stats",
     "parse_vars",
@@ -68,5 +82,6 @@ __all__ = [
     "select_steps",
     "select_times",
     "step_bounds",
+    "within_metres",
     "zone_statistics",
 ]

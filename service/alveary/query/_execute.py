@@ -38,7 +38,10 @@ async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarra
             raise as_domain_error(exc, f"chunks of {var!r}") from exc
         return np.asarray(out, dtype=np.float64).reshape(steps, n)
 
-    arrays = await asyncio.gather(*(one(v) for v in r.variables))
+    if len(r.variables) == 1:  # nothing to overlap: no task to create and schedule
+        arrays = [await one(r.variables[0])]
+    else:
+        arrays = list(await asyncio.gather(*(one(v) for v in r.variables)))
     return dict(zip(r.variables, arrays, strict=True))
 
 
@@ -93,7 +96,9 @@ def _zone_values(plan: Plan, values: dict[str, np.ndarray]) -> ZoneResult:
 
 
 def _nearest_with_data(result: ZoneResult) -> ZoneResult:
-    """Keep only the nearest zone (rows are sorted by distance) that has any data."""
+    """Keep only the nearest zone (rows are sorted by distance) that has any data; with
+    none, no row and a note saying so."""
+    searched = int(result.zones.size)
     have = np.zeros(result.zones.size, dtype=bool)
     for a in result.values.values():
         have |= ~np.all(np.isnan(a), axis=0) if a.shape[0] else False
@@ -101,4 +106,10 @@ def _nearest_with_data(result: ZoneResult) -> ZoneResult:
     result.zones = result.zones[hits]
     result.values = {v: a[:, hits] for v, a in result.values.items()}
     result.extra = {k: a[hits] for k, a in result.extra.items()}
+    if hits.size == 0:
+        result.note = (
+            f"no zone with data for the selected variables and time steps among the "
+            f"{searched} zone(s) searched (the zone holding the point and those whose centres "
+            "lie within the radius)"
+        )
     return result

@@ -9,6 +9,7 @@ from __future__ import annotations
 import hashlib
 import math
 from dataclasses import dataclass, field
+from typing import Literal
 
 import numpy as np
 
@@ -76,11 +77,17 @@ class Selection:
     """The parts every cube query shares: level, variables and time.
 
     ``level`` None means the cube's finest level, ``variables`` None every variable.
+    ``steps`` is the rule by which ``time`` picks time steps: ``"in_force"`` (the native
+    API: an instant picks the step in force then, an interval the steps that start in
+    it, no ``datetime`` the latest step) or ``"overlap"`` (OGC API - EDR: the steps whose
+    intervals meet ``time``, no ``datetime`` every step; see
+    :func:`alveary.query.select_steps`).
     """
 
     level: int | None = None
     variables: tuple[str, ...] | None = None
     time: TimeSpec = field(default_factory=lambda: parse_datetime(None))
+    steps: Literal["in_force", "overlap"] = "in_force"
 
 
 @dataclass(frozen=True)
@@ -163,15 +170,25 @@ class BboxQuery:
 
 @dataclass(frozen=True)
 class PolygonQuery:
-    """Zones whose centres lie in a polygon; values or statistics."""
+    """Zones whose centres lie in a polygon; values or statistics.
+
+    ``properties`` is the canonical JSON text of a posted Feature's properties (empty
+    when there were none): a GeoJSON statistics answer keeps them, so they are part of
+    the key.
+    """
 
     area: Area
     stats: tuple[str, ...] = ()
     selection: Selection = field(default_factory=Selection)
+    properties: str = ""
     op = "polygon"
 
     def key(self) -> str:
-        return f"geometry={self.area.key};stats={','.join(self.stats)}"
+        key = f"geometry={self.area.key};stats={','.join(self.stats)}"
+        if self.properties:
+            digest = hashlib.blake2b(self.properties.encode(), digest_size=16).hexdigest()
+            key += f";properties={digest}"
+        return key
 
 
 @dataclass(frozen=True, eq=False)

@@ -14,9 +14,18 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from alveary import grid
-from alveary._errors import InvalidInput, LimitExceeded
+from alveary._errors import InvalidInput, LimitExceeded, NotFound
 from alveary.cube import ReadPlan
 from alveary.query._catalog import Catalog
+from alveary.query._coverage import (
+    Box,
+    clip_bbox,
+    clip_polygon,
+    coverage_boxes,
+    covered,
+    outside,
+    radius_in_coverage,
+)
 from alveary.query._cube import CubeSnapshot
 from alveary.query._geometry import bbox_area
 from alveary.query._models import (
@@ -29,9 +38,10 @@ from alveary.query._models import (
     RadiusQuery,
 )
 from alveary.query._result import ResultVariable
+from alveary.query._steps import select_steps
 from alveary.query._time import select_times
 
-__all__ = ["Limits", "Plan", "Resolved", "make_plan", "resolve"]
+__all__ = ["Limits", "Plan", "Resolved", "finest_fitting_level", "make_plan", "resolve"]
 
 
 @dataclass(frozen=True)
@@ -105,7 +115,8 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
     NotFound
         Unknown cube.
     InvalidInput
-        A level the cube does not hold, an unknown variable, an instant before the time axis.
+        A level the cube does not hold, an unknown variable, an instant before the time
+        axis (under the ``"in_force"`` rule; under ``"overlap"`` it selects no step).
     """
     cube = catalog.get(cube_id).snapshot()
     sel = query.selection
@@ -129,7 +140,10 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
         if unknown:
             raise InvalidInput("vars", unknown[0], f"variables of this cube: {', '.join(names)}")
         variables = sel.variables
-    t0, t1 = select_times(sel.time, np.asarray(cube.times))
+    if sel.steps == "overlap":
+        t0, t1 = select_steps(sel.time, np.asarray(cube.times))
+    else:
+        t0, t1 = select_times(sel.time, np.asarray(cube.times))
     return Resolved(cube_id, cube, cube.version, level, variables, t0, t1, query)
 
 
@@ -195,9 +209,32 @@ def _precheck_area(area_m2: float, level: int, limits: Limits) -> None:
         _check("zones per request", estimate, limits.max_zones, approximate=True)
 
 
-def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-    q, level = resolved.query, resolved.level
+def _boxes(resolved: Resolved, level: int) -> tuple[Box, ...] | None:
+    return coverage_boxes(resolved.cube.coverage, level)
+
+
+def _outside(resolved: Resolved) -> NotFound:
+    return outside(resolved.cube_id, resolved.cube.coverage)
+
+
+def _check_covered(resolved: Resolved, boxes: tuple[Box, ...] | None, ids: np.ndarray) -> None:
+    """404 when no zone of the answer has its centre in the (widened) coverage."""
+    if boxes is None or ids.size == 0:
+        return
+    lat, lon = grid.zone_to_point(ids)
+    if not covered(boxes, lat, lon).any():
+        raise _outside(resolved)
+
+
+def _locate(
+    resolved: Resolved, limits: Limits, level: int | None = None
+) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    q = resolved.query
+    level = resolved.level if level is None else level
+    boxes = _boxes(resolved, level)
     if isinstance(q, PointQuery):
+        if boxes is not None and not covered(boxes, q.lat, q.lon):
+            raise _outside(resolved)
         return np.atleast_1d(grid.point_to_zone(q.lat, q.lon, level)).astype(np.uint64), {}
     if isinstance(q, DiskQuery):
         _check("k", q.k, limits.max_k)
@@ -207,25 +244,87 @@ def _locate(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, n
         else:
             centre = np.asarray(grid.point_to_zone(q.lat, q.lon, level), dtype=np.uint64)
         ids, steps = grid.zone_disk(centre, q.k, return_steps=True)
+        _check_covered(resolved, boxes, np.asarray(ids, dtype=np.uint64))
         order = np.lexsort((ids, steps))
         return ids[order], {"steps": np.asarray(steps)[order].astype(np.int32)}
     if isinstance(q, RadiusQuery):
-        _precheck_area(math.pi * q.meters**2, level, limits)
-        ids, dist = grid.zones_in_radius(q.lat, q.lon, q.meters, level, return_distance=True)
+        circle = math.pi * q.meters**2
+        if boxes is not None and sum(bbox_area(*b) for b in boxes) < circle:
+            _precheck_area(min(circle, sum(bbox_area(*b) for b in boxes)), level, limits)
+            found = radius_in_coverage(q.lat, q.lon, q.meters, level, boxes)
+            if found is None:
+                raise _outside(resolved)
+            ids, dist = found
+        else:
+            _precheck_area(circle, level, limits)
+            ids, dist = grid.zones_in_radius(q.lat, q.lon, q.meters, level, return_distance=True)
+            _check_covered(resolved, boxes, np.asarray(ids, dtype=np.uint64))
         order = np.lexsort((ids, dist))
         return ids[order], {"distance_m": np.asarray(dist, dtype=np.float64)[order]}
     if isinstance(q, BboxQuery):
-        _precheck_area(bbox_area(q.west, q.south, q.east, q.north), level, limits)
-        return grid.zones_in_bbox(q.west, q.south, q.east, q.north, level), {}
+        pieces = clip_bbox((q.west, q.south, q.east, q.north), boxes)
+        if not pieces:
+            raise _outside(resolved)
+        _precheck_area(sum(bbox_area(*p) for p in pieces), level, limits)
+        if len(pieces) == 1:
+            return grid.zones_in_bbox(*pieces[0], level), {}
+        parts = [np.asarray(grid.zones_in_bbox(*p, level), dtype=np.uint64) for p in pieces]
+        return np.unique(np.concatenate(parts)), {}
     if isinstance(q, PolygonQuery):
         _check("polygon vertices", q.area.vertices, limits.max_polygon_vertices)
-        _precheck_area(q.area.area_m2, level, limits)
-        return grid.zones_in_polygon(q.area.geometry, level), {}
+        area = clip_polygon(q.area, boxes)
+        if area is None:
+            raise _outside(resolved)
+        _precheck_area(area.area_m2, level, limits)
+        return grid.zones_in_polygon(area, level), {}
     if isinstance(q, PointsQuery):
         _check("points per request", q.lat.size, limits.max_points)
+        if boxes is not None and not covered(boxes, q.lat, q.lon).any():
+            raise _outside(resolved)
         zones = grid.point_to_zone(q.lat, q.lon, level).astype(np.uint64).reshape(-1)
         return zones, {"point": np.arange(zones.size, dtype=np.uint32)}
     raise TypeError(f"not a query: {q!r}")  # pragma: no cover
+
+
+_AREA_LIMITS = ("zones per request", "time steps × zones")
+
+
+def _fits(resolved: Resolved, limits: Limits, level: int) -> bool:
+    """Whether the query's zones at ``level`` stay within the zone and cell limits."""
+    try:
+        zones, _ = _locate(resolved, limits, level)
+    except LimitExceeded:
+        return False
+    n = int(np.asarray(zones).size)
+    return n <= limits.max_zones and n * (resolved.t1 - resolved.t0) <= limits.max_cells
+
+
+def finest_fitting_level(resolved: Resolved, limits: Limits) -> int | None:
+    """The finest of the cube's levels coarser than the query's at which a region query
+    (radius, bbox, polygon) stays within the zone and cell limits; ``None`` if none does."""
+    if not isinstance(resolved.query, RadiusQuery | BboxQuery | PolygonQuery):
+        return None
+    coarser = sorted((int(v) for v in resolved.cube.levels if v < resolved.level), reverse=True)
+    return next((lv for lv in coarser if _fits(resolved, limits, lv)), None)
+
+
+def _located(resolved: Resolved, limits: Limits) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """The query's zones; a zone or cell limit refusal names the finest level that fits."""
+    try:
+        zones, extra = _locate(resolved, limits)
+        zones = np.asarray(zones, dtype=np.uint64)
+        if not isinstance(resolved.query, PointsQuery):
+            steps = resolved.t1 - resolved.t0
+            _check("zones per request", int(zones.size), limits.max_zones)
+            _check("time steps × zones", steps * int(zones.size), limits.max_cells)
+    except LimitExceeded as exc:
+        if exc.limit not in _AREA_LIMITS or exc.finest_level is not None:
+            raise
+        finest = finest_fitting_level(resolved, limits)
+        if finest is None:
+            raise
+        raise LimitExceeded(exc.limit, exc.requested, exc.maximum, finest_level=finest) from None
+    return zones, extra
 
 
 def make_plan(resolved: Resolved, limits: Limits) -> Plan:
@@ -236,8 +335,7 @@ def make_plan(resolved: Resolved, limits: Limits) -> Plan:
     LimitExceeded
         Too many zones, steps, vertices, points, time steps × zones or bytes.
     """
-    zones, extra = _locate(resolved, limits)
-    zones = np.asarray(zones, dtype=np.uint64)
+    zones, extra = _located(resolved, limits)
     if isinstance(resolved.query, PointsQuery):
         read_zones, take = np.unique(zones, return_inverse=True)
     else:

@@ -40,6 +40,9 @@ class ZoneResult:
     extra:
         Per-row columns that belong to the query: ``steps`` (disk), ``distance_m``
         (radius), ``point`` (multi-point: the index of the input point).
+    note:
+        A remark the answer carries for its reader, such as why it has no rows (a
+        ``nearest`` radius query that found no zone with data); ``None`` when there is none.
     """
 
     cube: str
@@ -51,6 +54,7 @@ class ZoneResult:
     values: dict[str, np.ndarray]
     extra: dict[str, np.ndarray] = field(default_factory=dict)
     kind: str = "zones"
+    note: str | None = None
 
     @property
     def rows(self) -> int:

@@ -14,6 +14,8 @@ that instant, an interval every step that overlaps it, and no parameter every st
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
 from alveary.query._time import TimeSpec
@@ -66,13 +68,20 @@ def step_bounds(times: np.ndarray, axis: np.ndarray | None = None) -> tuple[np.n
     where = np.searchsorted(full, times)
     if np.any(where >= full.size) or not np.array_equal(full[where], times):
         raise ValueError("times must be steps of the axis")
-    after = where + 1
-    inside = after < full.size
-    ends = np.empty_like(times)
-    ends[inside] = full[after[inside]]
-    if not inside.all():  # the axis's last step is among them: it ends as described above
-        ends[~inside] = full[-1] if full.size == 1 else _upper_of_last(full)
-    return times.copy(), ends
+    return times.copy(), _axis_ends(full.tobytes())[where]
+
+
+@functools.lru_cache(maxsize=256)
+def _axis_ends(axis: bytes) -> np.ndarray:
+    """The end of every step of an axis (given as its ``datetime64[s]`` bytes): the next
+    step's start, and for the last step as described above. Kept per axis, since every
+    query of a cube version asks for the same one (read-only)."""
+    full = np.frombuffer(axis, dtype="datetime64[s]")
+    ends = np.empty_like(full)
+    ends[:-1] = full[1:]
+    ends[-1] = full[-1] if full.size == 1 else _upper_of_last(full)
+    ends.setflags(write=False)
+    return ends
 
 
 def select_steps(spec: TimeSpec, times: np.ndarray) -> tuple[int, int]:
@@ -99,7 +108,7 @@ def select_steps(spec: TimeSpec, times: np.ndarray) -> tuple[int, int]:
     n = int(axis.size)
     if n == 0 or spec.kind == "latest":
         return (0, n)
-    lo, hi = step_bounds(axis)
+    lo, hi = axis, _axis_ends(axis.tobytes())
     a = spec.start
     b = spec.start if spec.kind == "instant" else spec.end
     lo_us, hi_us = lo.astype("datetime64[us]"), hi.astype("datetime64[us]")

@@ -50,6 +50,8 @@ _NUMBER = r"[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?"
 _POSITION = re.compile(rf"\s*({_NUMBER})\s+({_NUMBER})\s*")
 _NUMBERS = re.compile(_NUMBER)
 _WORD = re.compile(r"[A-Za-z]+")
+# The most common value by far, read in one match (anything else takes the full reader).
+_PLAIN_POINT = re.compile(rf"\s*POINT\s*\(\s*({_NUMBER})\s+({_NUMBER})\s*\)\s*", re.IGNORECASE)
 
 
 def _allowed(kinds: Collection[str]) -> str:
@@ -268,6 +270,12 @@ def parse_coords(
     unknown = set(kinds) - set(WKT_TYPES)
     if unknown:
         raise ValueError(f"unknown WKT kinds {sorted(unknown)}; known: {WKT_TYPES}")
+    if "Point" in kinds and isinstance(text, str) and (max_positions is None or max_positions):
+        plain = _PLAIN_POINT.fullmatch(text)
+        if plain is not None:
+            lon, lat = float(plain.group(1)), float(plain.group(2))
+            if abs(lon) <= 180 and abs(lat) <= 90:
+                return {"type": "Point", "coordinates": [lon, lat]}
     allowed = _allowed(kinds)
     if not isinstance(text, str) or not text.strip():
         raise InvalidInput(_PARAMETER, text, allowed)
