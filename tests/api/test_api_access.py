@@ -49,6 +49,12 @@ CUBE_ROUTES: dict[tuple[str, str], tuple[dict[str, str], object]] = {
     ("GET", "/collections/{cube}/area"): ({"coords": WKT_SQUARE, "stats": "mean"}, None),
     ("POST", "/collections/{cube}/area"): ({}, {"coords": WKT_SQUARE}),
     ("GET", "/collections/{cube}/cube"): ({"bbox": "10,10,11.5,11.5"}, None),
+    ("GET", "/collections/{cube}/map/tiles"): ({"vars": "temp"}, None),
+    ("GET", "/collections/{cube}/map/tiles/WebMercatorQuad"): ({}, None),
+    ("GET", "/collections/{cube}/map/tiles/WebMercatorQuad/{z}/{y}/{x}"): ({"vars": "temp"}, None),
+    ("GET", "/collections/{cube}/tiles"): ({}, None),
+    ("GET", "/collections/{cube}/tiles/WebMercatorQuad/{z}/{y}/{x}"): ({"level": "3"}, None),
+    ("GET", "/collections/{cube}/legend"): ({"vars": "temp", "f": "svg"}, None),
 }
 # Routes that name no cube: answered to anyone, and must not name the private cube.
 OTHER_ROUTES: dict[tuple[str, str], dict[str, str]] = {
@@ -65,8 +71,11 @@ OTHER_ROUTES: dict[tuple[str, str], dict[str, str]] = {
     ("GET", "/conformance"): {},
     ("GET", "/collections"): {},
     ("GET", "/openapi-3.0.json"): {},
+    ("GET", "/map"): {},
+    ("GET", "/static/{path:path}"): {},
 }
 ZONE = "4a-3-5"
+TILE = "3/2/4"  # z/y/x: 41-66° N, 0-45° E
 
 
 def flat_routes(routes, prefix=""):
@@ -147,6 +156,7 @@ def call(http, route, cube, headers=None, params=None):
     query, body = CUBE_ROUTES.get(route, (params or {}, None))
     target = path.replace("{cube}", cube).replace("{zone}", ZONE)
     target = target.replace("{name}", "swagger-ui.css")
+    target = target.replace("{z}/{y}/{x}", TILE).replace("{path:path}", "map.css")
     return http.request(method, target, params=query, json=body, headers=headers or {})
 
 

@@ -1,23 +1,20 @@
 """The map page in a real browser: Playwright drives Debian's chromium (never a downloaded
-browser) against a real uvicorn process.
+browser) against a real ``alveary serve`` (uvicorn) process serving an invented cube of an
+analytic field (``tests/support/mapcube.py``) from the S3-protocol test server.
 
-Until the service's own map routes exist, the process is the stand-in of
-``tests/support/map_harness.py``, which serves the packaged page and renders tiles with the
-service's tile functions from an analytic field. Judges: screen pixels are turned into
-lat/lon with Web Mercator arithmetic written here (the map library's 512-pixel world),
-the zone under a point comes from grid.point_to_zone, values from the analytic field at
-the zone centre, the level rule and row arithmetic from the Python tile module, and the
-tile zoom the library really requests from its own network traffic. Every request the
-page makes must stay on the loopback interface.
+Judges: screen pixels are turned into lat/lon with Web Mercator arithmetic written here
+(the map library's 512-pixel world), the zone under a point comes from
+grid.point_to_zone, values from the analytic field at the zone centre, the level rule and
+row arithmetic from the Python tile module, and the tile zoom the library really requests
+from its own network traffic. Every request the page makes must stay on the loopback
+interface.
 """
 
 from __future__ import annotations
 
 import io
 import math
-import os
 import re
-import sys
 from pathlib import Path
 from urllib.parse import parse_qs, urlsplit
 
@@ -30,8 +27,10 @@ from alveary.api._colours import colour_scale
 from alveary.api._tileset import map_tiles_document
 from alveary.query import format_time, parse_datetime, select_times
 from alveary.query._tiles import default_level, pixel_size, tile_bounds
-from support.map_harness import COVERAGE, CUBE_ID, LEVELS, RANGES, TIMES, VARIABLES, field
-from support.process import LoopbackProcess, free_port
+from support.mapcube import COVERAGE, CUBE_ID, LEVELS, TIMES, VARIABLES, build_map_cube, field
+from support.server import ServiceProcess
+
+pytestmark = pytest.mark.server
 
 CHROMIUM = Path("/usr/bin/chromium")
 FLAGS = [
@@ -54,25 +53,34 @@ NO_CHROMIUM = (
 STATIC = ROOT / "service" / "alveary" / "api" / "static"
 
 
-class Harness(LoopbackProcess):
-    name = "map page harness"
-
-    def start(self):
-        port = free_port()
-        self.url = f"http://127.0.0.1:{port}"
-        env = dict(os.environ, PYTHONPATH=str(ROOT / "tests"))
-        args = [sys.executable, "-m", "uvicorn", "support.map_harness:app"]
-        args += ["--host", "127.0.0.1", "--port", str(port), "--log-level", "warning"]
-        self.launch(args, env, f"{self.url}/healthz", ok_below=300, timeout=90)
-        return self
+def recorded_range(variable, level):
+    """min, max of the values stored at a level: the field at the centres of the zones the
+    cube holds, over every step (what the service records when the cube is built)."""
+    west, south, east, north = COVERAGE
+    lat, lon = grid.zone_to_point(grid.zones_in_bbox(west, south, east, north, level))
+    steps = np.arange(TIMES.size, dtype=float)[:, None]
+    values = field(variable, lat[None, :], lon[None, :], steps)
+    return float(np.nanmin(values)), float(np.nanmax(values))
 
 
 @pytest.fixture(scope="module")
-def harness(tmp_path_factory):
+def served(s3_server):
+    """A real service serving the invented cube."""
     if not CHROMIUM.exists():
         pytest.skip(NO_CHROMIUM)
-    with Harness(tmp_path_factory.mktemp("harness") / "harness.log") as h:
-        yield h
+    bucket = s3_server.create_bucket()
+    url = f"s3://{bucket}/field"
+    options = s3_server.storage_options()
+    build_map_cube(url, options)
+    cubes = [
+        {"id": CUBE_ID, "url": url, "title": "Invented test field", "storage_options": options}
+    ]
+    proc = ServiceProcess(cubes)
+    proc.start()
+    try:
+        yield proc
+    finally:
+        proc.stop()
 
 
 @pytest.fixture(scope="module")
@@ -88,7 +96,7 @@ def browser():
 
 
 @pytest.fixture
-def page(browser, harness):
+def page(browser, served):
     """A page whose every request is logged; anything not on loopback is refused."""
     context = browser.new_context(viewport=VIEWPORT)
     page = context.new_page()
@@ -117,8 +125,8 @@ def page(browser, harness):
     context.close()
 
 
-def open_map(page, harness, query="", view=""):
-    page.goto(f"{harness.url}/map{query}{view}")
+def open_map(page, served, query="", view=""):
+    page.goto(f"{served.url}/map{query}{view}")
     page.wait_for_selector("body[data-tiles='loaded']", timeout=90_000)
 
 
@@ -176,8 +184,8 @@ def canvas_pixels(page):
     return np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(int)
 
 
-def test_page_logic_agrees_with_the_service(page, harness):
-    open_map(page, harness)
+def test_page_logic_agrees_with_the_service(page, served):
+    open_map(page, served)
     logic = "window.alveary.logic"
     # the level rule, on a cube's levels and on every level (tile module's Python)
     wide = map_tiles_document("x", title="x", levels=range(0, 25))["levels"]
@@ -223,9 +231,9 @@ def test_page_logic_agrees_with_the_service(page, harness):
     assert query == {"vars": ["b"], "range": ["1,2"], "datetime": ["2025-03-01T00:00:00Z"]}
 
 
-def test_tile_zoom_is_the_one_the_map_library_requests(page, harness):
+def test_tile_zoom_is_the_one_the_map_library_requests(page, served):
     for view in ["#2.4/20/10", "#3.6/30/5", "#5/40/12"]:
-        open_map(page, harness, view=view)
+        open_map(page, served, view=view)
         state = view_state(page)
         expected = page.evaluate(
             "(z) => window.alveary.logic.tileZoom(z, 256, 0, window.alveary.state.doc.maxzoom)",
@@ -237,8 +245,8 @@ def test_tile_zoom_is_the_one_the_map_library_requests(page, harness):
         page.requested.clear()
 
 
-def test_tiles_are_coloured_where_the_cube_has_data(page, harness):
-    open_map(page, harness, query=f"?cube={CUBE_ID}&vars=moisture", view="#1.6/10/10")
+def test_tiles_are_coloured_where_the_cube_has_data(page, served):
+    open_map(page, served, query=f"?cube={CUBE_ID}&vars=moisture", view="#1.6/10/10")
     view = view_state(page)
     with_cube = canvas_pixels(page)
     hide_cube_layer(page)
@@ -258,8 +266,8 @@ def test_tiles_are_coloured_where_the_cube_has_data(page, harness):
     assert drawn[outside].mean() < 0.005
 
 
-def test_zone_centres_show_the_field_through_the_colour_scale(page, harness):
-    open_map(page, harness, query=f"?cube={CUBE_ID}&vars=moisture&colormap=honey", view="#6/30/10")
+def test_zone_centres_show_the_field_through_the_colour_scale(page, served):
+    open_map(page, served, query=f"?cube={CUBE_ID}&vars=moisture&colormap=honey", view="#6/30/10")
     view = view_state(page)
     shown = canvas_pixels(page)
     hide_cube_layer(page)
@@ -275,7 +283,7 @@ def test_zone_centres_show_the_field_through_the_colour_scale(page, harness):
     sx, sy = lonlat_to_screen(view, clon, clat)
     keep = (sx > 3) & (sx < w - 3) & (sy > 3) & (sy < h - 3)
     scale = colour_scale("honey")
-    vmin, vmax = RANGES["moisture"]
+    vmin, vmax = recorded_range("moisture", level)
     checked = good = 0
     for x, y, la, lo in zip(sx[keep], sy[keep], clat[keep], clon[keep], strict=True):
         px, py = int(x), int(y)
@@ -289,8 +297,8 @@ def test_zone_centres_show_the_field_through_the_colour_scale(page, harness):
     assert good / checked > 0.97
 
 
-def test_click_gives_zone_value_and_series(page, harness):
-    open_map(page, harness, query=f"?cube={CUBE_ID}&vars=canopy_temp", view="#6/30/10")
+def test_click_gives_zone_value_and_series(page, served):
+    open_map(page, served, query=f"?cube={CUBE_ID}&vars=canopy_temp", view="#6/30/10")
     view = view_state(page)
     sx, sy = 0.5 * view["width"] + 37.0, 0.5 * view["height"] - 23.0
     page.mouse.click(view["left"] + sx, view["top"] + sy)
@@ -327,8 +335,8 @@ def test_click_gives_zone_value_and_series(page, harness):
     page.screenshot(path=str(out / "map-page.png"))
 
 
-def test_pickers_change_tiles_and_legend(page, harness):
-    open_map(page, harness, view="#3/20/10")
+def test_pickers_change_tiles_and_legend(page, served):
+    open_map(page, served, view="#3/20/10")
     page.requested.clear()
     page.select_option("#variable", "canopy_temp")
     page.select_option("#colormap", "drift")

@@ -12,6 +12,14 @@ Three figures per tile, each the best of three, medians over seeded tiles:
 Values come from a stand-in for a warm cube (a smooth field looked up by each zone's
 place in the five-strip layout): about what the executor costs when every chunk is
 cached, without its per-request overhead. Goals: new tile <= 4x encode, another step <= 2x encode.
+The pixel-to-zone map is also timed the plain way (``point_to_zone`` on every pixel
+centre) beside ``raster_to_zone``, which the service uses.
+
+Then over HTTP: a real ``alveary serve`` process (one worker, answer cache off, chunk
+cache on) serving a cube on the S3-protocol test server: the time of one cold tile (its
+chunks read from the S3 server), and tiles per second per worker for new tiles and for
+another time step of tiles already drawn (chunks warm), against Pillow's encode measured
+in this process.
 """
 
 from __future__ import annotations
@@ -21,6 +29,7 @@ import math
 import statistics
 import time
 
+import httpx
 import numpy as np
 from PIL import Image
 
@@ -28,12 +37,16 @@ from alveary import grid
 from alveary.api._colours import colour_scale
 from alveary.api._mvt import zone_tile_mvt
 from alveary.api._render import PNG_COMPRESSION, encode_png, render_tile
+from alveary.cube import create_cube
 from alveary.query._tiles import (
     PixelZoneCache,
     default_level,
+    pixel_centres,
     tile_zone_candidates,
     tile_zones,
 )
+from support.s3 import S3Server
+from support.server import ServiceProcess
 
 SEED = 20260512
 N_TILES = 16
@@ -110,7 +123,11 @@ def main() -> None:
         t_encode, _ = best_of(lambda rgba=rgba: pillow_encode(rgba, PNG_COMPRESSION))
         t_encode6, _ = best_of(lambda rgba=rgba: pillow_encode(rgba, 6))
         t_map, tz = best_of(lambda z=z, y=y, x=x, level=level: tile_zones(z, y, x, level))
-        rows.append((t_encode, t_new, t_step, t_encode6, t_map, len(png), tz.zones.size))
+        lat, lon = pixel_centres(z, y, x, pad=1)
+        t_plain, _ = best_of(
+            lambda lat=lat, lon=lon, level=level: grid.point_to_zone(lat, lon, level)
+        )
+        rows.append((t_encode, t_new, t_step, t_encode6, t_map, len(png), tz.zones.size, t_plain))
 
     enc = statistics.median(r[0] for r in rows)
     new = statistics.median(r[1] for r in rows)
@@ -119,6 +136,7 @@ def main() -> None:
     pmap = statistics.median(r[4] for r in rows)
     size = statistics.median(r[5] for r in rows)
     nzones = statistics.median(r[6] for r in rows)
+    plain = statistics.median(r[7] for r in rows)
     ratio_new = statistics.median(r[1] / r[0] for r in rows)
     ratio_step = statistics.median(r[2] / r[0] for r in rows)
 
@@ -149,11 +167,92 @@ def main() -> None:
     )
     print(f"| of which the pixel-to-zone map | {pmap * 1e3:.2f} ms | {pmap / enc:.2f} | |")
     print(
+        f"| the map by point_to_zone on every pixel instead | {plain * 1e3:.2f} ms | "
+        f"{plain / enc:.2f} | |"
+    )
+    print(
         f"| Pillow encode at its default zlib level 6 | {enc6 * 1e3:.2f} ms | {enc6 / enc:.2f} | |"
     )
     print(
         f"\nvector tile: {vzones.size} candidate zones at level {vlevel}, "
         f"{t_mvt * 1e3:.1f} ms, {len(mvt) / 1024:.1f} KiB"
+    )
+    over_http(enc)
+
+
+HTTP_LEVELS = (4, 6, 8)
+HTTP_REGION = (-20.0, 20.0, 40.0, 60.0)  # west, south, east, north
+HTTP_STEPS = 12
+
+
+def build_http_cube(url: str, options: dict) -> None:
+    times = np.datetime64("2025-01-01", "s") + np.arange(HTTP_STEPS) * np.timedelta64(1, "D")
+    writer = create_cube(
+        url,
+        cube_id="tiles",
+        times=times,
+        levels=list(HTTP_LEVELS),
+        coverage=HTTP_REGION,
+        variables={"v": {"units": "1", "dtype": "float32"}},
+        storage_options=options,
+    )
+    cube = WarmCube()
+    for level in HTTP_LEVELS:
+        zones = grid.zones_in_bbox(*HTTP_REGION, level)
+        steps = np.stack([cube.read(zones, level, t) for t in range(HTTP_STEPS)])
+        writer.write("v", level, zones, steps)
+    writer.publish()
+
+
+def over_http(encode_s: float) -> None:
+    # tiles of zoom 6 over the region: level 8 zones (about 2.5-5 px) on every tile
+    n = 1 << 6
+    xs = range(int((HTTP_REGION[0] + 180) / 360 * n) + 1, int((HTTP_REGION[2] + 180) / 360 * n))
+    ys = range(19, 25)
+    tiles = [(6, y, x) for y in ys for x in xs][:40]
+    with S3Server() as s3:
+        bucket = s3.create_bucket()
+        url, options = f"s3://{bucket}/tiles", s3.storage_options()
+        build_http_cube(url, options)
+        cubes = [{"id": "tiles", "url": url, "storage_options": options}]
+        opts = {"answer_cache_bytes": 0, "workers": 1}
+        with (
+            ServiceProcess(cubes, options=opts) as svc,
+            httpx.Client(base_url=svc.url, timeout=120) as http,
+        ):
+
+            def get(tile, step):
+                z, y, x = tile
+                r = http.get(
+                    f"/collections/tiles/map/tiles/WebMercatorQuad/{z}/{y}/{x}",
+                    params={"datetime": f"2025-01-{step + 1:02d}T00:00:00Z"},
+                )
+                r.raise_for_status()
+
+            start = time.perf_counter()
+            get(tiles[0], 0)  # cold: chunks from the S3 server, a new pixel-to-zone map
+            cold = time.perf_counter() - start
+            start = time.perf_counter()
+            for tile in tiles[1:]:
+                get(tile, 0)  # new tiles (their chunks mostly cold too)
+            new = (time.perf_counter() - start) / (len(tiles) - 1)
+            for tile in tiles:
+                get(tile, 1)  # chunks of step 1 warm (a chunk holds several steps)
+            start = time.perf_counter()
+            for tile in tiles:
+                get(tile, 2)  # another step: cached pixel maps, warm chunks
+            step = (time.perf_counter() - start) / len(tiles)
+    print(f"\nover HTTP (one worker, answer cache off, {len(tiles)} tiles of zoom 6):")
+    print("| figure | time | ratio to Pillow encode | tiles/s per worker |")
+    print("|---|---|---|---|")
+    print(
+        f"| one cold tile (chunks from the S3 server) | {cold * 1e3:.1f} ms | "
+        f"{cold / encode_s:.1f} | |"
+    )
+    print(f"| new tiles, in turn | {new * 1e3:.1f} ms | {new / encode_s:.1f} | {1 / new:.0f} |")
+    print(
+        f"| another time step, chunks warm | {step * 1e3:.1f} ms | {step / encode_s:.1f} | "
+        f"{1 / step:.0f} |"
     )
 
 

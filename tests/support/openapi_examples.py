@@ -272,6 +272,56 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
         "exact",
     ),
     ("get_zone", "pentagon", "A pentagon: five neighbours", "GET", "/zones/5n", {}, None, "exact"),
+    (
+        "map_tilesets",
+        "demo",
+        "The demo cube's map tiles: tile set and TileJSON template",
+        "GET",
+        f"/collections/{CUBE}/map/tiles",
+        {"vars": "soil_moisture", "colormap": "clover"},
+        None,
+        "exact",
+    ),
+    (
+        "map_tile",
+        "bad-row",
+        "A row past the tile matrix: 422 problem+json (tiles themselves are PNG)",
+        "GET",
+        f"/collections/{CUBE}/map/tiles/WebMercatorQuad/3/8/1",
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "vector_tilesets",
+        "demo",
+        "The demo cube's zones as vector tiles: tile set and TileJSON template",
+        "GET",
+        f"/collections/{CUBE}/tiles",
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "vector_tile",
+        "bad-zoom",
+        "A zoom past 24: 422 problem+json (tiles themselves are Mapbox Vector Tiles)",
+        "GET",
+        f"/collections/{CUBE}/tiles/WebMercatorQuad/25/0/0",
+        {},
+        None,
+        "exact",
+    ),
+    (
+        "legend",
+        "bad-format",
+        "An unknown format: 422 problem+json (legends themselves are PNG or SVG)",
+        "GET",
+        f"/collections/{CUBE}/legend",
+        {"vars": "soil_moisture", "f": "gif"},
+        None,
+        "exact",
+    ),
     ("health", "ok", "The process is alive", "GET", "/healthz", {}, None, "exact"),
     ("ready", "ok", "Every store answers", "GET", "/readyz", {}, None, "exact"),
     (
@@ -287,8 +337,13 @@ EXAMPLES: list[tuple[str, str, str, str, str, dict[str, Any], Any, str]] = [
 ]
 
 
+# Examples send their own request id, so the problem documents they record are whole.
+EXAMPLE_REQUEST_ID = "example-request-0001"
+
+
 def send(client: httpx.Client, method: str, path: str, query: dict, body: Any) -> httpx.Response:
-    return client.request(method, path, params=query, json=body)
+    headers = {"X-Request-Id": EXAMPLE_REQUEST_ID}
+    return client.request(method, path, params=query, json=body, headers=headers)
 
 
 _JSON_MEDIA = (

@@ -21,6 +21,7 @@ from alveary.api._requestlog import RequestLogMiddleware, access_logger
 from alveary.api._routes_cubes import install_point_lane
 from alveary.api._routes_cubes import router as cubes_router
 from alveary.api._routes_edr import router as edr_router
+from alveary.api._routes_maps import router as maps_router
 from alveary.api._routes_meta import router as meta_router
 from alveary.api._routes_zones import router as zones_router
 from alveary.api._service import Service
@@ -120,6 +121,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     install_point_lane(app)
     app.include_router(cubes_router)
     app.include_router(zones_router)
+    app.include_router(maps_router)
     app.include_router(edr_router)
     install_openapi(app)
     install_docs(app)

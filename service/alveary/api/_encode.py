@@ -29,7 +29,7 @@ import pyarrow as pa
 import pyarrow.csv as pacsv
 
 from alveary import grid
-from alveary.query import ResultVariable, StatsResult, ZoneResult, format_time
+from alveary.query import ResultVariable, StatsResult, TimeAxis, ZoneResult, time_axis_json
 
 __all__ = ["BLOCK_ROWS", "FORMATS", "MEDIA_TYPES", "encode", "encode_blocks", "negotiate"]
 
@@ -144,22 +144,53 @@ def _variables_json(result: ZoneResult | StatsResult) -> dict[str, dict[str, str
 
 
 def _header(result: ZoneResult | StatsResult) -> dict[str, Any]:
-    head = {
+    body: dict[str, Any] = {
         "cube": result.cube,
         "version": result.version,
         "level": result.level,
         "variables": _variables_json(result),
-        "times": format_time(result.times),
     }
+    # times; with calendar periods also time_bounds and time_steps; for a climatology
+    # the keys ("month" or "dayofyear") instead of times
+    body.update(time_axis_json(result.times, result.axis))
+    if result.analysis:
+        body["analysis"] = result.analysis
     note = getattr(result, "note", None)
     if note:
-        head["note"] = note
-    return head
+        body["note"] = note
+    return body
+
+
+def _row_count(result: ZoneResult | StatsResult) -> int:
+    """Rows of the time axis: time steps, periods, or climatology keys."""
+    axis = result.axis
+    if axis is not None and axis.keys is not None:
+        return int(axis.keys.size)
+    return int(result.times.size)
+
+
+def _time_axis_arrays(times: np.ndarray, axis: TimeAxis | None) -> dict[str, pa.Array]:
+    """The long form's time columns over one run of the axis: ``time``; for periods also
+    ``time_end`` and ``time_steps``; for a climatology its key instead of ``time``."""
+    if axis is not None and axis.keys is not None and axis.key is not None:
+        return {axis.key: pa.array(axis.keys.astype(np.int64), pa.int64())}
+    stamp = pa.timestamp("s", tz="UTC")
+    cols = {"time": pa.array(times.astype("datetime64[s]"), stamp)}
+    if axis is not None and axis.bounds is not None:
+        cols["time_end"] = pa.array(axis.bounds[:, 1].astype("datetime64[s]"), stamp)
+    if axis is not None and axis.steps is not None:
+        cols["time_steps"] = pa.array(axis.steps.astype(np.int64), pa.int64())
+    return cols
+
+
+def _tiled(arr: pa.Array, n: int) -> pa.Array:
+    """``arr`` repeated ``n`` times end to end."""
+    return pa.chunked_array([arr] * n, arr.type).combine_chunks() if n else arr[:0]
 
 
 def _blocks(result: ZoneResult, block_rows: int) -> Iterator[slice]:
     n = int(result.zones.size)
-    per = max(1, block_rows // max(1, int(result.times.size)))
+    per = max(1, block_rows // max(1, _row_count(result)))
     for start in range(0, n, per):
         yield slice(start, min(n, start + per))
 
@@ -264,7 +295,9 @@ def _stats_geojson(result: StatsResult, geometry: dict[str, Any] | None) -> byte
 
 # -- Arrow and CSV (long form) ---------------------------------------------------------
 def _zone_schema(result: ZoneResult) -> pa.Schema:
-    fields = [pa.field("zone", pa.uint64()), pa.field("time", pa.timestamp("s", tz="UTC"))]
+    fields = [pa.field("zone", pa.uint64())]
+    axis = _time_axis_arrays(result.times, result.axis)
+    fields += [pa.field(name, col.type) for name, col in axis.items()]
     for name, info in result.variables.items():
         meta = {"units": info.units, "long_name": info.long_name}
         fields.append(pa.field(name, _arrow_type(info), metadata=meta))
@@ -276,12 +309,9 @@ def _zone_schema(result: ZoneResult) -> pa.Schema:
 
 def _zone_batch(result: ZoneResult, sel: slice, schema: pa.Schema) -> pa.RecordBatch:
     zones = result.zones[sel]
-    n, t = zones.size, result.times.size
-    time = result.times.astype("datetime64[s]")
-    cols: list[pa.Array] = [
-        pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64()),
-        pa.array(np.tile(time, n), pa.timestamp("s", tz="UTC")),
-    ]
+    n, t = zones.size, _row_count(result)
+    cols: list[pa.Array] = [pa.array(np.repeat(zones.astype(np.uint64), t), pa.uint64())]
+    cols += [_tiled(a, n) for a in _time_axis_arrays(result.times, result.axis).values()]
     for name, info in result.variables.items():
         block = result.values[name][:, sel].T.reshape(-1)
         cols.append(_masked(block, _arrow_type(info)))
@@ -313,9 +343,14 @@ def _time_text(times: np.ndarray) -> np.ndarray:
 
 
 def _zone_csv_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
-    t = int(result.times.size)
-    times = pa.array(_time_text(result.times), pa.string())
-    names = ["zone", "zone_text", "lat", "lon", "time"]
+    t = _row_count(result)
+    axis = {
+        name: pa.array(_time_text(a.to_numpy()), pa.string())
+        if pa.types.is_timestamp(a.type)
+        else a
+        for name, a in _time_axis_arrays(result.times, result.axis).items()
+    }
+    names = ["zone", "zone_text", "lat", "lon", *axis]
     names += [*result.variables, *result.extra]
     options = pacsv.WriteOptions(quoting_style="needed", include_header=True)
     if result.zones.size == 0:
@@ -332,7 +367,7 @@ def _zone_csv_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
             pa.array(np.asarray(grid.zone_to_text(zones)), pa.string()).take(repeat),
             pa.array(np.repeat(np.asarray(lat, dtype=np.float64), t)),
             pa.array(np.repeat(np.asarray(lon, dtype=np.float64), t)),
-            pa.chunked_array([times] * n).combine_chunks() if n else times[:0],
+            *(_tiled(a, n) for a in axis.values()),
         ]
         for name, info in result.variables.items():
             block = printable(result.values[name][:, sel], info).T.reshape(-1)
@@ -353,13 +388,11 @@ def _csv_bytes(table: pa.Table, options: pacsv.WriteOptions) -> bytes:
 
 
 def _stats_table(result: StatsResult) -> pa.Table:
-    t = result.times.size
+    t = _row_count(result)
     names = list(result.variables)
-    time = result.times.astype("datetime64[s]")
-    cols: dict[str, pa.Array] = {
-        "time": pa.array(np.tile(time, len(names)), pa.timestamp("s", tz="UTC")),
-        "variable": pa.array(np.repeat(np.array(names, dtype=object), t).tolist(), pa.string()),
-    }
+    axis = _time_axis_arrays(result.times, result.axis)
+    cols: dict[str, pa.Array] = {name: _tiled(a, len(names)) for name, a in axis.items()}
+    cols["variable"] = pa.array(np.repeat(np.array(names, dtype=object), t).tolist(), pa.string())
     for stat in (*result.names, "area_m2"):
         data = np.concatenate([result.stats[v][stat] for v in names]) if names else np.zeros(0)
         if stat == "count":
@@ -374,7 +407,7 @@ def _stats_table(result: StatsResult) -> pa.Table:
 
 def _schema_meta(result: ZoneResult | StatsResult) -> dict[str, str]:
     units = {v.name: v.units for v in result.variables.values()}
-    return {
+    meta = {
         "cube": result.cube,
         "version": result.version,
         "level": str(result.level),
@@ -382,6 +415,9 @@ def _schema_meta(result: ZoneResult | StatsResult) -> dict[str, str]:
         "variables": orjson.dumps(_variables_json(result)).decode(),
         **_note(result),
     }
+    if result.analysis:
+        meta["analysis"] = orjson.dumps(result.analysis).decode()
+    return meta
 
 
 def _note(result: ZoneResult | StatsResult) -> dict[str, str]:

@@ -4,7 +4,7 @@ object from its parameters and hands it to :meth:`Service.answer`."""
 from __future__ import annotations
 
 from typing import Any
-from urllib.parse import parse_qsl
+from urllib.parse import parse_qsl, quote
 
 import numpy as np
 import orjson
@@ -27,13 +27,20 @@ from alveary.api._service import Service
 from alveary.api.deps import (
     CUBE_FORMATS,
     AcceptHeader,
+    AggParam,
+    AnomalyParam,
     BboxParam,
+    ClimatologyParam,
     CredentialsDep,
     CubeId,
     DatetimeParam,
+    EveryParam,
+    FocalKParam,
+    FocalParam,
     FormatDep,
     FormatParam,
     IfNoneMatch,
+    KernelParam,
     KParam,
     LatParam,
     LevelParam,
@@ -95,6 +102,8 @@ def _cube_meta(
     links = [
         {"href": f"/cubes/{cube_id}", "rel": "self" if full else "item", "type": "application/json"}
     ]
+    if cube is not None:
+        links += _map_links(cube_id)
     if cube is None:
         return {
             "id": cube_id,
@@ -131,6 +140,26 @@ def _cube_meta(
         "coverage": list(snap.coverage),
         "links": links,
     }
+
+
+def _map_links(cube_id: str) -> list[dict[str, str]]:
+    """Links from a cube to its map page, map tiles, vector tiles and legend."""
+    cid = quote(cube_id)
+    return [
+        {"href": f"/map?cube={cid}", "rel": "alternate", "type": "text/html", "title": "map"},
+        {
+            "href": f"/collections/{cid}/map/tiles",
+            "rel": "http://www.opengis.net/def/rel/ogc/1.0/tilesets-map",
+            "type": "application/json",
+            "title": "map tiles",
+        },
+        {
+            "href": f"/collections/{cid}/tiles",
+            "rel": "http://www.opengis.net/def/rel/ogc/1.0/tilesets-vector",
+            "type": "application/json",
+            "title": "zones as vector tiles",
+        },
+    ]
 
 
 @router.get(
@@ -179,10 +208,29 @@ async def query_point(
     f: FormatParam = None,
     accept: AcceptHeader = None,
     if_none_match: IfNoneMatch = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
 ) -> Response:
     # Parameters are flat here (no sub-dependencies): this is the hot path of dashboards.
     service: Service = request.app.state.service
-    sel = make_selection(level, vars_, time)
+    sel = make_selection(
+        level,
+        vars_,
+        time,
+        focal=focal,
+        focal_k=focal_k,
+        kernel=kernel,
+        every=every,
+        agg=agg,
+        climatology=climatology,
+        anomaly=anomaly,
+        max_focal_k=service.limits.max_focal_k,
+    )
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)
     credentials = await service.credentials(request.scope)

@@ -51,6 +51,7 @@ from alveary.api._edr_docs import (
 from alveary.api._edr_problem import edr_error, exception_body
 from alveary.api._encode import encode
 from alveary.api._openapi30 import openapi_30
+from alveary.api._requestlog import REQUEST_ID
 from alveary.api._service import Encoder, Service
 from alveary.grid import MAX_LEVEL
 from alveary.query import (
@@ -119,6 +120,9 @@ def _check_names(request: Request, known: set[str]) -> None:
 
 
 def _problem(status: int, body: dict[str, Any], headers: dict[str, str] | None = None) -> Response:
+    request_id = REQUEST_ID.get()
+    if request_id is not None:
+        body = {**body, "request_id": request_id}
     content = orjson.dumps(body, option=orjson.OPT_SERIALIZE_NUMPY | orjson.OPT_NON_STR_KEYS)
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 

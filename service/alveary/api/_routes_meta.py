@@ -9,8 +9,9 @@ from starlette.responses import Response
 from alveary import StoreUnavailable, __version__
 from alveary._errors import http_status
 from alveary.api._edr_docs import landing_page
+from alveary.api._routes_maps import landing_html, wants_html
 from alveary.api._schemas import Landing, Ready
-from alveary.api.deps import CredentialsDep, ServiceDep, known_parameters
+from alveary.api.deps import AcceptHeader, CredentialsDep, ServiceDep, known_parameters
 
 __all__ = ["router"]
 
@@ -30,6 +31,12 @@ _CUBES_LINK = {
     "type": "application/json",
     "title": "Cubes (the native API)",
 }
+_MAP_LINK = {
+    "href": "/map",
+    "rel": "alternate",
+    "type": "text/html",
+    "title": "The map page",
+}
 _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
 
 
@@ -39,13 +46,22 @@ _NOT_READY = http_status(StoreUnavailable).status  # a store cannot be reached
     summary="Landing page: links to the API definition, conformance, collections and cubes",
     response_model=Landing,
 )
-async def landing(request: Request) -> Response:
+async def landing(
+    request: Request,
+    service: ServiceDep,
+    credentials: CredentialsDep,
+    accept: AcceptHeader = None,
+) -> Response:
+    if wants_html(accept):  # a browser: a page with links to the map and the API docs
+        page = landing_html(service, credentials)
+        return Response(page, media_type="text/html; charset=utf-8")
     # One landing page for both APIs: OGC API - EDR's links (service-desc, service-doc,
     # conformance, data -> /collections) and the native /cubes. EDR's landing-page schema
     # has no member for a version, so it is part of the description. Links are absolute
     # (from the request's base URL): some clients (OWSLib's api()) follow them as given.
     base = str(request.base_url).rstrip("/")
-    extra = [{**link, "href": base + link["href"]} for link in (_OPENAPI_30_LINK, _CUBES_LINK)]
+    links = (_OPENAPI_30_LINK, _CUBES_LINK, _MAP_LINK)
+    extra = [{**link, "href": base + link["href"]} for link in links]
     body = landing_page(
         base,
         title="alveary",

@@ -78,13 +78,44 @@ class ZoneRow(BaseModel):
     )
 
 
-class ZonesAnswer(BaseModel):
+class _AnalysisAxis(BaseModel):
+    """The time axis of an answer with time aggregation, and what was computed."""
+
+    time_bounds: list[list[str]] | None = Field(
+        None, description="With every: [start, end) of each period, RFC 3339 UTC."
+    )
+    time_steps: list[int] | None = Field(
+        None, description="With every: the cube's time steps each period holds."
+    )
+    month: list[int] | None = Field(
+        None, description="climatology=month: the months (1-12) of the rows, instead of times."
+    )
+    dayofyear: list[int] | None = Field(
+        None,
+        description="climatology=dayofyear: the days (1-365, 29 February as 28) instead of times.",
+    )
+    analysis: dict[str, Any] | None = Field(
+        None,
+        description=(
+            "With focal, kernel, every, climatology or anomaly: what was computed, the "
+            "climatology's years per key, and warnings (fewer than three years)."
+        ),
+    )
+
+
+class ZonesAnswer(_AnalysisAxis):
     cube: str
     version: str
     level: int
     kind: str = Field(description="point, disk, radius, bbox, polygon or points.")
     variables: dict[str, VariableMeta]
-    times: list[str] = Field(description="The selected time steps, RFC 3339 UTC.")
+    times: list[str] | None = Field(
+        None,
+        description=(
+            "The selected time steps, RFC 3339 UTC; with every, each period's start "
+            "(absent for a climatology)."
+        ),
+    )
     zones: list[ZoneRow]
     note: str | None = Field(
         None,
@@ -95,13 +126,15 @@ class ZonesAnswer(BaseModel):
     )
 
 
-class StatsAnswer(BaseModel):
+class StatsAnswer(_AnalysisAxis):
     cube: str
     version: str
     level: int
     kind: Literal["stats"]
     variables: dict[str, VariableMeta]
-    times: list[str]
+    times: list[str] | None = Field(
+        None, description="Time steps or period starts (absent for a climatology)."
+    )
     zone_count: int = Field(description="Zones whose centres lie in the area.")
     area_m2: float = Field(description="Area of those zones, m².")
     stats: dict[str, dict[str, list[float | None]]] = Field(

@@ -18,7 +18,7 @@ import asyncio
 import contextlib
 import logging
 import time
-from collections.abc import AsyncIterator, Callable, Iterator
+from collections.abc import AsyncIterator, Awaitable, Callable, Iterator
 from typing import Any
 
 import anyio
@@ -47,6 +47,7 @@ from alveary.query import (
     Catalog,
     CubeSnapshot,
     CubeSource,
+    PixelZoneCache,
     Plan,
     PointQuery,
     PolygonQuery,
@@ -93,6 +94,8 @@ class Service:
         )
         self.plans = PlanCache(settings.plan_cache_bytes)
         self.metrics = Metrics(self.catalog, self.cache, self.answers)
+        # pixel-to-zone maps of map tiles: another time step of a tile reuses its map
+        self.pixels = PixelZoneCache(settings.pixel_cache_bytes)
         self.cache_control = f"public, max-age={settings.max_age}"
         # Area plans enumerate many zones in worker threads: two at a time per process.
         self._planning = asyncio.Semaphore(2)
@@ -275,6 +278,39 @@ class Service:
             name = operation or f"query_{query.op}"
             answer = Answer(resolved.cube_id, resolved.version, etag, body, media, name)
             self.answers.put_answer(answer, key)
+        return Response(body, media_type=media, headers=headers)
+
+    async def cached(
+        self,
+        cube_id: str,
+        version: str,
+        etag: str,
+        make: Callable[[], Awaitable[tuple[bytes, str]]],
+        if_none_match: str | None,
+        *,
+        key: str | None = None,
+        operation: str = "",
+    ) -> Response:
+        """An answer made by ``make()`` (body, media type) unless the client or the answer
+        cache already holds it: 304 on a matching If-None-Match, else the cached body,
+        else made now and kept under its ETag (and the raw request ``key``). The caller
+        has checked access to the cube (:meth:`cube_for`)."""
+        headers = self.headers(etag, cube_id)
+        if matches(if_none_match, etag):
+            return Response(status_code=304, headers=headers)
+        caching = self.answers.max_bytes > 0
+        found = self.answers.get(etag) if caching else None
+        if found is not None:
+            if key is not None:
+                self.answers.remember(key, etag)
+            return Response(found.body, media_type=found.media_type, headers=headers)
+        try:
+            body, media = await make()
+        except (StoreUnavailable, ChunkDecodeError) as exc:
+            self.note_fault(cube_id, exc)
+            raise
+        if caching:
+            self.answers.put_answer(Answer(cube_id, version, etag, body, media, operation), key)
         return Response(body, media_type=media, headers=headers)
 
     def busy(self) -> Response:

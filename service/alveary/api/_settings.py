@@ -104,6 +104,17 @@ class Settings(BaseSettings):
     plan_cache_bytes: int = Field(
         32 * 2**20, ge=0, description="Plans of area queries kept for repeats; 0: off."
     )
+    pixel_cache_bytes: int = Field(
+        64 * 2**20,
+        ge=0,
+        description="Pixel-to-zone maps of map tiles kept for other time steps; 0: off.",
+    )
+    basemap_url: str = Field(
+        "",
+        max_length=1000,
+        description="Raster tile URL template ({z}/{x}/{y}) drawn under the map page's "
+        "cube layer; empty (default): none, so the page needs no other host.",
+    )
     max_age: int = Field(60, ge=0, description="Cache-Control max-age of answers, seconds.")
     refresh_interval: float = Field(30.0, gt=0, description="Seconds between version checks.")
     deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")
@@ -137,6 +148,7 @@ class Settings(BaseSettings):
     max_points: int = Field(Limits.max_points, ge=1)
     max_cells: int = Field(Limits.max_cells, ge=1)
     max_read_bytes: int = Field(Limits.max_read_bytes, ge=1)
+    max_focal_k: int = Field(Limits.max_focal_k, ge=1, description="Largest focal_k allowed.")
     max_body_bytes: int = Field(8 * 2**20, ge=1024)
 
     access_log: bool = Field(
@@ -176,6 +188,7 @@ class Settings(BaseSettings):
             max_points=self.max_points,
             max_cells=self.max_cells,
             max_read_bytes=self.max_read_bytes,
+            max_focal_k=self.max_focal_k,
         )
 
     @property

@@ -17,17 +17,36 @@ from alveary.api._access import Credentials
 from alveary.api._encode import negotiate
 from alveary.api._service import Service
 from alveary.grid import MAX_LEVEL
-from alveary.query import Selection, parse_datetime, parse_stats, parse_vars
+from alveary.query import (
+    AGGREGATES,
+    CLIMATOLOGY_KEYS,
+    EVERY,
+    FOCAL_STATISTICS,
+    MAX_FOCAL_K,
+    Selection,
+    parse_datetime,
+    parse_focal,
+    parse_stats,
+    parse_time_aggregation,
+    parse_vars,
+)
 
 __all__ = [
     "AcceptHeader",
+    "AggParam",
+    "AnomalyParam",
     "BboxParam",
+    "ClimatologyParam",
     "CredentialsDep",
     "CubeFormat",
     "CubeId",
+    "EveryParam",
+    "FocalKParam",
+    "FocalParam",
     "FormatParam",
     "IfNoneMatch",
     "KParam",
+    "KernelParam",
     "LatParam",
     "LonParam",
     "MetersParam",
@@ -163,6 +182,86 @@ StatsParam = Annotated[
         examples=["mean,max"],
     ),
 ]
+FocalParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            "Neighbourhood statistic: every zone's value becomes the statistic over the zones "
+            f"within focal_k steps of it ({', '.join(FOCAL_STATISTICS)}; NaN left out; the "
+            "mean is the area mean). `gradient` gives magnitude (units per metre) and "
+            "direction (degrees clockwise from north) of a least-squares plane."
+        ),
+        max_length=20,
+        examples=["mean"],
+    ),
+]
+FocalKParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            "Disk radius of focal or kernel, in steps: 1 to the configured maximum "
+            f"({MAX_FOCAL_K} unless configured). Default 1; with kernel, the number of "
+            "weights minus one."
+        ),
+        max_length=10,
+        examples=["2"],
+    ),
+]
+KernelParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            "Ring weights w0,w1,...,wK (instead of focal): a zone i steps from the centre "
+            "weighs wi; normalised over the zones with data."
+        ),
+        max_length=500,
+        examples=["1,0.6,0.2"],
+    ),
+]
+EveryParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            f"Aggregate time steps into UTC calendar periods ({', '.join(EVERY)}: days, ISO "
+            "weeks from Monday, months, quarters, years); the answer gives each period's "
+            "start, its bounds and its number of steps. The periods holding the selected "
+            "steps are read whole."
+        ),
+        max_length=10,
+        examples=["P1M"],
+    ),
+]
+AggParam = Annotated[
+    str | None,
+    Query(
+        description=f"Aggregate of each period ({', '.join(AGGREGATES)}); default mean.",
+        max_length=10,
+        examples=["max"],
+    ),
+]
+ClimatologyParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            f"Mean over the years per {' or '.join(CLIMATOLOGY_KEYS)} (of the steps "
+            "datetime selects; without datetime, the whole time axis). Fewer than three "
+            "years give a warning in the answer's metadata."
+        ),
+        max_length=10,
+        examples=["month"],
+    ),
+]
+AnomalyParam = Annotated[
+    str | None,
+    Query(
+        description=(
+            f"Each value minus the climatology of its {' or '.join(CLIMATOLOGY_KEYS)}, the "
+            "climatology taken over the whole time axis; with every, aggregated afterwards."
+        ),
+        max_length=10,
+        examples=["month"],
+    ),
+]
 CubeFormat = Literal["json", "geojson", "arrow", "csv"]
 ZoneFormat = Literal["json", "geojson", "arrow", "csv"]
 FormatParam = Annotated[
@@ -195,16 +294,58 @@ def read_datetime(text: str | None) -> Any:
         raise
 
 
-def make_selection(level: int | None, vars_: str | None, time: str | None) -> Selection:
-    """Level, variables and time of a cube query, from their parameters."""
-    return Selection(level=level, variables=parse_vars(vars_), time=read_datetime(time))
+def make_selection(
+    level: int | None,
+    vars_: str | None,
+    time: str | None,
+    *,
+    focal: str | None = None,
+    focal_k: str | None = None,
+    kernel: str | None = None,
+    every: str | None = None,
+    agg: str | None = None,
+    climatology: str | None = None,
+    anomaly: str | None = None,
+    max_focal_k: int = MAX_FOCAL_K,
+) -> Selection:
+    """Level, variables, time and analysis of a cube query, from their parameters."""
+    return Selection(
+        level=level,
+        variables=parse_vars(vars_),
+        time=read_datetime(time),
+        focal=parse_focal(focal, focal_k, kernel, max_k=max_focal_k),
+        timeagg=parse_time_aggregation(every, agg, climatology, anomaly),
+    )
 
 
 async def selection(
-    level: LevelParam = None, vars_: VarsParam = None, time: DatetimeParam = None
+    request: Request,
+    level: LevelParam = None,
+    vars_: VarsParam = None,
+    time: DatetimeParam = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
 ) -> Selection:
-    """Level, variables and time of a cube query."""
-    return make_selection(level, vars_, time)
+    """Level, variables, time and analysis of a cube query."""
+    service: Service = request.app.state.service
+    return make_selection(
+        level,
+        vars_,
+        time,
+        focal=focal,
+        focal_k=focal_k,
+        kernel=kernel,
+        every=every,
+        agg=agg,
+        climatology=climatology,
+        anomaly=anomaly,
+        max_focal_k=service.limits.max_focal_k,
+    )
 
 
 SelectionDep = Annotated[Selection, Depends(selection)]

@@ -44,6 +44,7 @@ _OPTIONS: tuple[tuple[str, str, type, str], ...] = (
     ("--max-polygon-vertices", "max_polygon_vertices", int, "limit: polygon vertices"),
     ("--max-points", "max_points", int, "limit: points per multi-point request"),
     ("--max-cells", "max_cells", int, "limit: time steps x zones per request"),
+    ("--max-focal-k", "max_focal_k", int, "limit: focal_k of neighbourhood statistics"),
     ("--max-body-bytes", "max_body_bytes", int, "limit: request body size, bytes"),
     ("--max-cells-in-flight", "max_cells_in_flight", int, "cells of large answers in flight"),
     ("--queue-wait", "queue_wait", float, "seconds a large request may wait for room"),

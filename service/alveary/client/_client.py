@@ -10,7 +10,7 @@ taken from the status by the one table the service answers with
 from __future__ import annotations
 
 import datetime as _dt
-from collections.abc import Awaitable, Sequence
+from collections.abc import Awaitable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Generic, NoReturn, TypeVar
 
@@ -31,6 +31,10 @@ Instant = str | _dt.datetime | _dt.date | None
 Datetime = str | _dt.datetime | _dt.date | tuple[Instant, Instant] | None
 Names = str | Sequence[str] | None
 Vars = Names
+#: Analysis parameters by name (focal, focal_k, kernel, every, agg, climatology, anomaly);
+#: a kernel may be given as a sequence of weights.
+Analysis = Mapping[str, str | int | float | Sequence[float]] | None
+ANALYSIS_PARAMETERS = ("focal", "focal_k", "kernel", "every", "agg", "climatology", "anomaly")
 R = TypeVar("R")
 
 
@@ -72,8 +76,16 @@ class _Call:
     answers_error: bool = False  # an error status still carries the answer (readiness)
 
 
-def _selection(level: int | None, vars: Vars, datetime: Datetime) -> dict[str, Any]:
+def _selection(
+    level: int | None, vars: Vars, datetime: Datetime, analysis: Analysis = None
+) -> dict[str, Any]:
     params: dict[str, Any] = {}
+    for name, value in (analysis or {}).items():
+        if name not in ANALYSIS_PARAMETERS:
+            raise InvalidInput("analysis", name, "one of " + ", ".join(ANALYSIS_PARAMETERS))
+        if isinstance(value, Sequence) and not isinstance(value, str):
+            value = ",".join(repr(float(w)) for w in value)
+        params[name] = value
     if level is not None:
         params["level"] = int(level)
     if vars is not None:
@@ -118,6 +130,9 @@ def _decode(response: httpx.Response, call: _Call) -> Any:
 class _Operations(Generic[R]):
     """One method per operation of the service; ``_send`` makes the request.
 
+    Every cube query takes ``analysis``, the analysis parameters by name, e.g.
+    ``{"focal": "mean", "focal_k": 2, "every": "P1M"}`` (see service/docs/analysis.md).
+
     The sync client's ``_send`` returns the answer, the async client's an awaitable of it,
     so each operation is written once for both.
     """
@@ -146,10 +161,11 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "json",
     ) -> R:
         """Values at the zone under a point."""
-        params = {"lat": lat, "lon": lon, **_selection(level, vars, datetime), "f": f}
+        params = {"lat": lat, "lon": lon, **_selection(level, vars, datetime, analysis), "f": f}
         return self._send(_Call("GET", f"/cubes/{cube}/point", params, fmt=f))
 
     def disk(
@@ -163,10 +179,11 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "json",
     ) -> R:
         """Values of every zone within ``k`` steps of a zone (given, or under a point)."""
-        params: dict[str, Any] = {"k": k, **_selection(level, vars, datetime), "f": f}
+        params: dict[str, Any] = {"k": k, **_selection(level, vars, datetime, analysis), "f": f}
         if zone is not None:
             params["zone"] = str(zone)
         else:
@@ -184,10 +201,16 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "json",
     ) -> R:
         """Values of the zones whose centres lie within ``meters`` of a point."""
-        params = {"lat": lat, "lon": lon, "meters": meters, **_selection(level, vars, datetime)}
+        params = {
+            "lat": lat,
+            "lon": lon,
+            "meters": meters,
+            **_selection(level, vars, datetime, analysis),
+        }
         params.update(nearest="true" if nearest else "false", f=f)
         return self._send(_Call("GET", f"/cubes/{cube}/radius", params, fmt=f))
 
@@ -200,11 +223,16 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "json",
     ) -> R:
         """Values or statistics of the zones whose centres lie in a box (w, s, e, n)."""
         text = bbox if isinstance(bbox, str) else ",".join(repr(float(v)) for v in bbox)
-        params: dict[str, Any] = {"bbox": text, **_selection(level, vars, datetime), "f": f}
+        params: dict[str, Any] = {
+            "bbox": text,
+            **_selection(level, vars, datetime, analysis),
+            "f": f,
+        }
         params.update(_stats(stats))
         return self._send(_Call("GET", f"/cubes/{cube}/bbox", params, fmt=f))
 
@@ -217,12 +245,13 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "json",
     ) -> R:
         """Values or statistics in a GeoJSON (Multi)Polygon, a Feature or a shapely shape."""
         if hasattr(geometry, "__geo_interface__"):
             geometry = geometry.__geo_interface__
-        params: dict[str, Any] = {**_selection(level, vars, datetime), "f": f}
+        params: dict[str, Any] = {**_selection(level, vars, datetime, analysis), "f": f}
         params.update(_stats(stats))
         # (tuples, as in __geo_interface__, are written as JSON arrays)
         return self._send(_Call("POST", f"/cubes/{cube}/polygon", params, geometry, fmt=f))
@@ -236,11 +265,12 @@ class _Operations(Generic[R]):
         level: int | None = None,
         vars: Vars = None,
         datetime: Datetime = None,
+        analysis: Analysis = None,
         f: str = "arrow",
     ) -> R:
         """Values at many points at once (Arrow by default)."""
         body = {"lat": [float(v) for v in lat], "lon": [float(v) for v in lon]}
-        params = {**_selection(level, vars, datetime), "f": f}
+        params = {**_selection(level, vars, datetime, analysis), "f": f}
         return self._send(_Call("POST", f"/cubes/{cube}/points", params, body, fmt=f))
 
     def zone(self, zone: int | str, *, f: str = "json") -> R:

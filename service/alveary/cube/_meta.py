@@ -290,6 +290,18 @@ class CubeMeta:
     history: str = ""
     extra: dict[str, Any] = field(default_factory=dict)
     manifest: Manifest | None = field(default=None, repr=False)
+    #: variable -> level -> (min, max) of the values stored, recorded at build time;
+    #: empty for versions built before ranges were recorded.
+    ranges: dict[str, dict[int, tuple[float, float]]] = field(default_factory=dict)
+
+    def value_range(self, variable: str, level: int) -> tuple[float, float] | None:
+        """(min, max) of the values of ``variable`` stored at ``level``, if recorded.
+
+        None when the version does not record it (built before ranges were recorded) or
+        holds no value of the variable at that level.
+        """
+        found = self.ranges.get(variable, {}).get(int(level))
+        return None if found is None else (float(found[0]), float(found[1]))
 
     def written(self, array: str, coords: tuple[int, ...]) -> bool | None:
         """Whether this version wrote the chunk ``coords`` of ``array`` (``"sm/6/strips"``).
@@ -333,6 +345,10 @@ class CubeMeta:
             },
             "grid": GRID_DESCRIPTION,
             "extra": self.extra,
+            "value_ranges": {
+                name: {str(lv): [lo, hi] for lv, (lo, hi) in sorted(per.items())}
+                for name, per in self.ranges.items()
+            },
         }
         return {
             "Conventions": "CF-1.10, ACDD-1.3",
@@ -385,6 +401,17 @@ class CubeMeta:
                 source=attrs.get("source", ""),
                 history=attrs.get("history", ""),
                 extra=block.get("extra", {}),
+                ranges=_read_ranges(block.get("value_ranges", {})),
             )
         except (KeyError, TypeError, ValueError) as exc:
             raise CubeFormatError("metadata", str(exc), "a complete alveary block") from None
+
+
+def _read_ranges(data: Any) -> dict[str, dict[int, tuple[float, float]]]:
+    """The ``value_ranges`` block: {variable: {level: [min, max]}} (absent: empty)."""
+    if not isinstance(data, dict):
+        raise CubeFormatError("value_ranges", type(data).__name__, "an object")
+    out: dict[str, dict[int, tuple[float, float]]] = {}
+    for name, per in data.items():
+        out[str(name)] = {int(lv): (float(v[0]), float(v[1])) for lv, v in per.items()}
+    return out

@@ -120,6 +120,11 @@ class _Described:
     def coverage(self) -> tuple[float, float, float, float]:
         return self.meta.coverage
 
+    def value_range(self, variable: str, level: int) -> tuple[float, float] | None:
+        """(min, max) of a variable's stored values at a level, as recorded at build time
+        (None for versions built before ranges were recorded)."""
+        return self.meta.value_range(variable, level)
+
     def __repr__(self) -> str:
         return (
             f"<{type(self).__name__} {self.id!r} version={self.version} "

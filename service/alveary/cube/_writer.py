@@ -138,6 +138,9 @@ class ChunkWrite:
     coords: tuple[int, ...]
     zones: int
     state: str
+    #: the least and greatest value the chunk holds now (None when it holds none)
+    low: float | None = None
+    high: float | None = None
 
 
 class ChunkSink:
@@ -202,7 +205,9 @@ class ChunkSink:
             return ChunkWrite(array, coords, 0, "dropped" if held else "empty")
         arr = self._writable(array)
         arr[sel] = info.encode(v).reshape(tuple(s.stop - s.start for s in sel))
-        return ChunkWrite(array, coords, int(valid.any(axis=0).sum()), "written")
+        held_values = info.decode(info.encode(v[valid]))  # as stored (packing rounds)
+        low, high = float(held_values.min()), float(held_values.max())
+        return ChunkWrite(array, coords, int(valid.any(axis=0).sum()), "written", low, high)
 
     def write_strip_chunk(
         self,
@@ -399,8 +404,13 @@ class CubeWriter:
             for array in self._builder.grids:
                 if array.endswith("/strips"):
                     self._builder.objects_per[array] = (self.shards[0], 1, *self.shards[1:])
+        # variable -> level -> [min, max] of the values written (or inherited)
+        self._ranges: dict[str, dict[int, tuple[float, float]]] = {}
         if self._base is not None:
             self._builder.inherit(self._base.manifest)
+            for name, per in self._base.meta.ranges.items():
+                for level, (lo, hi) in per.items():
+                    self._widen(name, level, lo, hi)
 
     def _layout(self, level: int, chunks: ChunkShape | dict[int, ChunkShape] | None) -> LevelLayout:
         if chunks is None:
@@ -629,11 +639,22 @@ class CubeWriter:
             self._builder.build(),
         )
 
+    def _widen(self, variable: str, level: int, low: float, high: float) -> None:
+        """Widen the recorded value range of a variable at a level to hold [low, high]."""
+        per = self._ranges.setdefault(variable, {})
+        old = per.get(int(level))
+        if old is not None:
+            low, high = min(low, old[0]), max(high, old[1])
+        per[int(level)] = (float(low), float(high))
+
     def record(self, writes: Iterable[ChunkWrite]) -> None:
         """Enter chunk writes made through a :class:`ChunkSink` in the manifest."""
         for w in writes:
             if w.state == "written":
                 self._builder.add(w.array, w.coords)
+                if w.low is not None and w.high is not None:
+                    variable, level, _ = w.array.split("/")
+                    self._widen(variable, int(level), w.low, w.high)
             elif w.state == "dropped":
                 self._builder.drop(w.array, w.coords)
 
@@ -670,6 +691,10 @@ class CubeWriter:
         lvl, region, i, j = grid.zone_to_index(zones)
         if zones.size and (np.asarray(lvl) != level).any():
             raise InvalidInput("zones", None, f"zones of level {level} only")
+        finite = vals[np.isfinite(vals)]
+        if finite.size:
+            stored = info.decode(info.encode(finite))  # as stored (packing rounds)
+            self._widen(variable, level, float(stored.min()), float(stored.max()))
         plan = plan_cells(
             lay, f"{variable}/{level}", region, i, j, slice(start, start + steps), info.itemsize
         )
@@ -732,6 +757,7 @@ class CubeWriter:
             source=self.source,
             history=self.history,
             extra=self.extra,
+            ranges={k: dict(v) for k, v in self._ranges.items()},
         )
 
     def stored_bytes(self) -> int:

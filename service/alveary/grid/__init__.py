@@ -36,6 +36,7 @@ from alveary.grid._authalic import EARTH_AREA, R_AUTHALIC
 from alveary.grid._checks import check_lat_lon
 from alveary.grid._ids import MAX_LEVEL
 from alveary.grid._polygon import Footprint, read_polygon
+from alveary.grid._raster import raster_to_zone
 from alveary.grid._region_api import bbox_area, zones_in_bbox, zones_in_polygon, zones_in_radius
 from alveary.grid._window import disk_union, disk_windows
 
@@ -53,6 +54,7 @@ __all__ = [
     "index_to_zone",
     "is_pentagon",
     "point_to_zone",
+    "raster_to_zone",
     "read_polygon",
     "zone_area",
     "zone_areas",

@@ -38,6 +38,7 @@ from alveary.grid._api import PENTAGON_SHARE
 from alveary.grid._checks import steps as whole_steps
 
 IntArray = npt.NDArray[np.int64]
+Int32Array = npt.NDArray[np.int32]
 IdArray = npt.NDArray[np.uint64]
 FloatArray = npt.NDArray[np.float64]
 BoolArray = npt.NDArray[np.bool_]
@@ -79,10 +80,10 @@ class WindowTile:
     strip: int
     a0: int
     b0: int
-    source: IntArray
-    rows: IntArray
-    cols: IntArray
-    out: IntArray
+    source: Int32Array
+    rows: Int32Array
+    cols: Int32Array
+    out: Int32Array
 
 
 @dataclass(frozen=True, eq=False)
@@ -401,8 +402,11 @@ def disk_windows(zones: Any, k: int, *, tile: int = TILE) -> DiskWindows:
     tiles = []
     for t in p.tiles:
         pos = np.minimum(np.searchsorted(needed, t.ids), max(needed.size - 1, 0))
-        source = np.where(needed[pos] == t.ids, pos, -1).astype(np.int64)
-        tiles.append(WindowTile(t.strip, t.a0, t.b0, source, t.rows, t.cols, t.out))
+        # int32 positions (into lists far shorter than 2**31 zones): half the memory of
+        # int64, and plans holding the windows are kept for repeats
+        source = np.where(needed[pos] == t.ids, pos, -1).astype(np.int32)
+        small = (a.astype(np.int32) for a in (t.rows, t.cols, t.out))
+        tiles.append(WindowTile(t.strip, t.a0, t.b0, source, *small))
     members = np.searchsorted(needed, p.exact_zone).astype(np.int64)
     counts = np.bincount(p.exact_src, minlength=p.exact_out.size)
     start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)

@@ -40,6 +40,10 @@ class CubeSnapshot(Protocol):
     @property
     def coverage(self) -> tuple[float, float, float, float]: ...
 
+    def value_range(self, variable: str, level: int) -> tuple[float, float] | None:
+        """(min, max) of a variable's stored values at a level, recorded at build time."""
+        ...
+
     def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
         """The chunks a read of ``zones`` over ``[start, end]`` needs (no I/O)."""
         ...

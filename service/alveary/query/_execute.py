@@ -14,6 +14,7 @@ import numpy as np
 from alveary import grid
 from alveary._errors import DeadlineExceeded
 from alveary.cube import ChunkCache
+from alveary.query._analysis import AnalysedValues, apply_analysis
 from alveary.query._failures import as_domain_error
 from alveary.query._models import RadiusQuery
 from alveary.query._plan import Plan
@@ -21,6 +22,9 @@ from alveary.query._result import StatsResult, ZoneResult
 from alveary.query._stats import zone_statistics
 
 __all__ = ["execute"]
+
+# Analyses of reads larger than this many values run in a worker thread.
+_INLINE_VALUES = 200_000
 
 
 async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarray]:
@@ -64,6 +68,8 @@ async def execute(
             values = await _read_all(plan, cache)
     except TimeoutError:
         raise DeadlineExceeded(f"the request ran past its deadline of {deadline} s") from None
+    if plan.analysis is not None:
+        return await _analysed(plan, values)
     if plan.stats:
         return _statistics(plan, values)
     return _zone_values(plan, values)
@@ -113,3 +119,57 @@ def _nearest_with_data(result: ZoneResult) -> ZoneResult:
             "lie within the radius)"
         )
     return result
+
+
+async def _analysed(plan: Plan, values: dict[str, np.ndarray]) -> ZoneResult | StatsResult:
+    """Neighbourhood statistic, then time aggregation, then (with ``stats``) statistics
+    over the target zones per output row."""
+    r, analysis = plan.resolved, plan.analysis
+    assert analysis is not None
+    info, times = r.variable_info(), r.times
+    size = sum(a.size for a in values.values())
+    if size > _INLINE_VALUES:
+        out = await asyncio.to_thread(apply_analysis, analysis, values, times, info)
+    else:
+        out = apply_analysis(analysis, values, times, info)
+    if plan.stats:
+        return _analysed_statistics(plan, out)
+    rows = dict(out.values)
+    if plan.take is not None:
+        rows = {v: a[:, plan.take] for v, a in rows.items()}
+    result = ZoneResult(
+        r.cube_id,
+        r.version,
+        r.level,
+        out.variables,
+        out.times,
+        plan.zones,
+        rows,
+        dict(plan.extra),
+        r.query.op,
+        axis=out.axis,
+        analysis=out.meta,
+    )
+    if isinstance(r.query, RadiusQuery) and r.query.nearest:
+        result = _nearest_with_data(result)
+    return result
+
+
+def _analysed_statistics(plan: Plan, out: AnalysedValues) -> StatsResult:
+    r, analysis = plan.resolved, plan.analysis
+    assert analysis is not None
+    areas = grid.zone_areas(analysis.targets)
+    stats = {v: zone_statistics(a, areas, plan.stats) for v, a in out.values.items()}
+    return StatsResult(
+        r.cube_id,
+        r.version,
+        r.level,
+        out.variables,
+        out.times,
+        int(analysis.targets.size),
+        float(areas.sum()),
+        plan.stats,
+        stats,
+        axis=out.axis,
+        analysis=out.meta,
+    )

@@ -15,8 +15,10 @@ import numpy as np
 
 from alveary import grid
 from alveary._errors import InvalidInput
+from alveary.query._focal import FocalSpec
 from alveary.query._geometry import Area
 from alveary.query._time import TimeSpec, parse_datetime
+from alveary.query._timeagg import TimeAggregation
 
 __all__ = [
     "BboxQuery",
@@ -77,6 +79,8 @@ class Selection:
     """The parts every cube query shares: level, variables and time.
 
     ``level`` None means the cube's finest level, ``variables`` None every variable.
+    ``focal`` (a neighbourhood statistic) and ``timeagg`` (calendar periods, climatology,
+    anomaly) are the analysis applied to every selected zone, in that order; None: none.
     ``steps`` is the rule by which ``time`` picks time steps: ``"in_force"`` (the native
     API: an instant picks the step in force then, an interval the steps that start in
     it, no ``datetime`` the latest step) or ``"overlap"`` (OGC API - EDR: the steps whose
@@ -87,6 +91,34 @@ class Selection:
     level: int | None = None
     variables: tuple[str, ...] | None = None
     time: TimeSpec = field(default_factory=lambda: parse_datetime(None))
+    focal: FocalSpec | None = None
+    timeagg: TimeAggregation | None = None
+
+    def __post_init__(self) -> None:
+        agg = self.timeagg
+        if self.focal is not None and self.focal.statistic == "gradient" and agg is not None:
+            # a direction does not average: refuse, naming the time parameter given
+            name = next(n for n in ("every", "climatology", "anomaly") if getattr(agg, n))
+            raise InvalidInput(name, getattr(agg, name), "not with focal=gradient")
+
+    def analysis_key(self) -> str:
+        """Canonical text of the analysis parameters ("" without any), for cache keys.
+
+        >>> from alveary.query._timeagg import parse_time_aggregation
+        >>> Selection(focal=FocalSpec("mean", 2), timeagg=parse_time_aggregation("P1M")).analysis_key()
+        'focal=mean:2:;every=P1M;agg=mean;climatology=None;anomaly=None'
+        """  # noqa: E501
+        parts = []
+        if self.focal is not None:
+            kernel = ",".join(repr(w) for w in self.focal.kernel or ())
+            parts.append(f"focal={self.focal.statistic}:{self.focal.k}:{kernel}")
+        if self.timeagg is not None:
+            t = self.timeagg
+            parts.append(
+                f"every={t.every};agg={t.agg};climatology={t.climatology};anomaly={t.anomaly}"
+            )
+        return ";".join(parts)
+
     steps: Literal["in_force", "overlap"] = "in_force"
 
 

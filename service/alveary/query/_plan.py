@@ -16,6 +16,7 @@ import numpy as np
 from alveary import grid
 from alveary._errors import InvalidInput, LimitExceeded, NotFound
 from alveary.cube import ReadPlan
+from alveary.query._analysis import AnalysisPlan, analysis_steps, plan_analysis
 from alveary.query._catalog import Catalog
 from alveary.query._coverage import (
     Box,
@@ -27,6 +28,7 @@ from alveary.query._coverage import (
     radius_in_coverage,
 )
 from alveary.query._cube import CubeSnapshot
+from alveary.query._focal import MAX_FOCAL_K
 from alveary.query._geometry import bbox_area
 from alveary.query._models import (
     BboxQuery,
@@ -54,6 +56,7 @@ class Limits:
     max_points: int = 10_000
     max_cells: int = 10_000_000
     max_read_bytes: int = 2_000_000_000
+    max_focal_k: int = MAX_FOCAL_K
 
 
 @dataclass(frozen=True)
@@ -80,17 +83,19 @@ class Resolved:
     @property
     def key(self) -> str:
         """The normalised query: identical for requests that must give identical answers."""
-        return "|".join(
-            [
-                self.query.op,
-                self.cube_id,
-                self.version,
-                str(self.level),
-                ",".join(self.variables),
-                f"{self.t0}:{self.t1}",
-                self.query.key(),
-            ]
-        )
+        parts = [
+            self.query.op,
+            self.cube_id,
+            self.version,
+            str(self.level),
+            ",".join(self.variables),
+            f"{self.t0}:{self.t1}",
+            self.query.key(),
+        ]
+        analysis = self.query.selection.analysis_key()
+        if analysis:  # the output steps of an anomaly depend on datetime, too
+            parts += [analysis, self.query.selection.time.key()]
+        return "|".join(parts)
 
     def variable_info(self) -> dict[str, ResultVariable]:
         meta = self.cube.variables
@@ -144,6 +149,7 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
         t0, t1 = select_steps(sel.time, np.asarray(cube.times))
     else:
         t0, t1 = select_times(sel.time, np.asarray(cube.times))
+    t0, t1 = analysis_steps(sel, np.asarray(cube.times), t0, t1)  # steps the analysis reads
     return Resolved(cube_id, cube, cube.version, level, variables, t0, t1, query)
 
 
@@ -164,7 +170,10 @@ class Plan:
     ``zones`` are the rows of the answer (they may repeat for multi-point queries);
     ``read_zones`` the distinct zones read; ``take`` maps rows to ``read_zones``;
     ``reads`` variable -> the cube version's own read plan, which the executor runs as
-    it is; ``max_bytes`` the most that will be read.
+    it is; ``max_bytes`` the most that will be read. With a neighbourhood statistic or a
+    time aggregation, ``analysis`` says what is computed from the read (``read_zones``
+    then hold the targets plus the halo) and ``halo_chunks`` lists the chunk keys read
+    only for the halo (they are part of ``reads``).
     """
 
     resolved: Resolved
@@ -175,6 +184,8 @@ class Plan:
     max_bytes: int
     stats: tuple[str, ...] = ()
     reads: dict[str, ReadPlan] = field(default_factory=dict, repr=False)
+    analysis: AnalysisPlan | None = field(default=None, repr=False)
+    halo_chunks: tuple[str, ...] = ()
 
     @property
     def chunk_count(self) -> int:
@@ -183,9 +194,12 @@ class Plan:
     @property
     def nbytes(self) -> int:
         """An estimate of the memory the plan holds: its arrays plus per-object overheads."""
-        total = 4096 + self.zones.nbytes + self.read_zones.nbytes
+        total = 4096 + self.zones.nbytes
+        total += 0 if self.read_zones is self.zones else self.read_zones.nbytes
         total += 0 if self.take is None else self.take.nbytes
         total += sum(a.nbytes for a in self.extra.values())
+        total += 0 if self.analysis is None else self.analysis.nbytes
+        total += sum(64 + len(k) for k in self.halo_chunks)
         for read_plan in self.reads.values():
             for chunk in read_plan.reads:
                 total += 512 + chunk.columns.nbytes + sum(c.nbytes for c in chunk.cells)
@@ -341,15 +355,31 @@ def make_plan(resolved: Resolved, limits: Limits) -> Plan:
     else:
         read_zones, take = zones, None
     _check("zones per request", int(read_zones.size), limits.max_zones)
+    sel = resolved.query.selection
+    if sel.focal is not None:
+        _check("focal_k", sel.focal.k, limits.max_focal_k)
     steps = resolved.t1 - resolved.t0
+    analysis = plan_analysis(
+        sel, read_zones, np.asarray(resolved.cube.times), resolved.t0, resolved.t1
+    )
+    targets = read_zones  # the distinct zones answered for
+    if analysis is not None:  # the halo and every step read count against the limits
+        read_zones = analysis.read_zones
+        _check("zones read per request (with the halo)", int(read_zones.size), limits.max_zones)
     _check("time steps × zones", steps * int(read_zones.size), limits.max_cells)
     reads: dict[str, ReadPlan] = {}
+    halo_chunks: list[str] = []
     if steps and read_zones.size:
         times = resolved.times
         start, end = times[0], times[-1]
         for var in resolved.variables:
             reads[var] = resolved.cube.plan(var, read_zones, start, end)
+            if analysis is not None and analysis.windows is not None:
+                own = set(resolved.cube.plan(var, targets, start, end).keys)
+                halo_chunks += [key for key in reads[var].keys if key not in own]
     total = sum(r.max_bytes for r in reads.values())
     _check("bytes read per request", total, limits.max_read_bytes)
     stats = resolved.query.stats if isinstance(resolved.query, BboxQuery | PolygonQuery) else ()
-    return Plan(resolved, zones, read_zones, take, extra, total, stats, reads)
+    plan = Plan(resolved, zones, read_zones, take, extra, total, stats, reads)
+    plan.analysis, plan.halo_chunks = analysis, tuple(halo_chunks)
+    return plan

@@ -3,10 +3,11 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
-__all__ = ["ResultVariable", "StatsResult", "ZoneResult"]
+__all__ = ["ResultVariable", "StatsResult", "TimeAxis", "ZoneResult"]
 
 
 @dataclass(frozen=True)
@@ -22,6 +23,22 @@ class ResultVariable:
     dtype: str = "float64"
     scale_factor: float | None = None
     add_offset: float | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class TimeAxis:
+    """What a result's rows stand for when they are not the cube's own time steps.
+
+    Calendar periods: ``times`` holds each period's start, ``bounds`` ``(t, 2)`` its
+    ``[start, end)`` (datetime64[s], UTC) and ``steps`` the cube steps it holds. A
+    climatology: the rows are ``keys`` (months 1..12 or days of the year 1..365) named by
+    ``key`` (``"month"`` or ``"dayofyear"``), and ``times`` is empty.
+    """
+
+    bounds: np.ndarray | None = None
+    steps: np.ndarray | None = None
+    key: str | None = None
+    keys: np.ndarray | None = None
 
 
 @dataclass
@@ -40,6 +57,11 @@ class ZoneResult:
     extra:
         Per-row columns that belong to the query: ``steps`` (disk), ``distance_m``
         (radius), ``point`` (multi-point: the index of the input point).
+    axis:
+        Periods or climatology keys, when time was aggregated (else None).
+    analysis:
+        What was computed (neighbourhood statistic, time aggregation, climatology year
+        counts and warnings), as JSON-ready metadata; empty for plain values.
     note:
         A remark the answer carries for its reader, such as why it has no rows (a
         ``nearest`` radius query that found no zone with data); ``None`` when there is none.
@@ -54,12 +76,14 @@ class ZoneResult:
     values: dict[str, np.ndarray]
     extra: dict[str, np.ndarray] = field(default_factory=dict)
     kind: str = "zones"
+    axis: TimeAxis | None = None
+    analysis: dict[str, Any] = field(default_factory=dict)
     note: str | None = None
 
     @property
     def rows(self) -> int:
         """Number of (zone, time) rows in the long form."""
-        return int(self.zones.size * self.times.size)
+        return int(self.zones.size * _row_count(self.times, self.axis))
 
 
 @dataclass
@@ -68,7 +92,8 @@ class StatsResult:
 
     ``stats`` maps variable -> statistic -> float64 (t,); each variable also carries
     ``area_m2`` (area of the zones that had data). ``area_m2`` on the result is the area
-    of every zone of the selection, ``zone_count`` their number.
+    of every zone of the selection, ``zone_count`` their number. ``axis`` and
+    ``analysis`` as in :class:`ZoneResult`.
     """
 
     cube: str
@@ -81,3 +106,11 @@ class StatsResult:
     names: tuple[str, ...]
     stats: dict[str, dict[str, np.ndarray]]
     kind: str = "stats"
+    axis: TimeAxis | None = None
+    analysis: dict[str, Any] = field(default_factory=dict)
+
+
+def _row_count(times: np.ndarray, axis: TimeAxis | None) -> int:
+    if axis is not None and axis.keys is not None:
+        return int(axis.keys.size)
+    return int(times.size)

@@ -244,7 +244,8 @@ def tile_zones(z: int, y: int, x: int, level: int) -> TileZones:
     """  # noqa: E501
     z, y, x = check_tile(z, y, x)
     lat, lon = pixel_centres(z, y, x, pad=1)
-    ids = np.asarray(grid.point_to_zone(lat, lon, level), dtype=np.uint64)
+    # the pixel centres are a raster: rows share a latitude, columns a longitude
+    ids = np.asarray(grid.raster_to_zone(lat[:, 0], lon[0, :], level), dtype=np.uint64)
     # Hash-based factorisation: O(pixels), and only the distinct zones are sorted.
     codes, uniques = pd.factorize(ids.reshape(-1), sort=True)
     full = codes.astype(np.int32).reshape(ids.shape)
