@@ -217,9 +217,11 @@ def test_cache_serves_repeated_reads_without_gets(tmp_path):
     np.testing.assert_array_equal(a, b)
     assert cube.stats.chunk_gets == gets
     assert cache.hits >= 1 and cache.bytes > 0
-    tiny = ChunkCache(max_bytes=2 * 5 * 16 * 8 * 4)  # room for two float32 chunks
+    one_chunk = cube.plan("temp", zones[:1]).max_bytes
+    tiny = ChunkCache(max_bytes=8 * one_chunk)  # room for eight chunks
     cube2 = open_cube(url, cache=tiny)
-    cube2.read("temp", zones)
+    for z in zones[:: max(1, zones.size // 40)]:  # one chunk per read (1/8 of the cache)
+        cube2.read("temp", [z])
     assert tiny.bytes <= tiny.max_bytes and tiny.evictions > 0
 
 
@@ -237,3 +239,32 @@ def test_memory_store_roundtrip():
     w, zones, vals, _ = _build(url, None)
     w.publish()
     np.testing.assert_allclose(open_cube(url).read("temp", zones[:9]), vals[:, :9], atol=1e-4)
+
+
+def test_a_scan_larger_than_an_eighth_of_the_cache_does_not_fill_it():
+    """Small reads are kept; a read of more than 1/8 of the cache's bytes is answered
+    (values as written) but leaves the cache as it was."""
+    import numpy as np
+
+    from alveary import grid
+    from alveary.cube import ChunkCache, create_cube, open_cube
+
+    w = create_cube(
+        "memory://scan/c",
+        cube_id="scan",
+        times=["2024-01-01"],
+        levels=[4],
+        variables={"t": {"units": "K", "dtype": "float64"}},
+    )
+    zones = grid.all_zones(4)
+    w.write("t", 4, zones, np.arange(zones.size, dtype=float)[None, :])
+    w.publish()
+    cube = open_cube("memory://scan/c")
+    one = cube.plan("t", zones[:1])
+    cache = ChunkCache(max_bytes=8 * one.max_bytes)
+    assert cube.read("t", zones[:1], cache=cache).tolist() == [[0.0]]
+    assert len(cache) == 1
+    whole = cube.plan("t", zones)
+    assert whole.max_bytes > cache.max_bytes // 8
+    np.testing.assert_array_equal(cube.read("t", zones, cache=cache)[0], np.arange(zones.size))
+    assert len(cache) == 1  # the scan kept nothing

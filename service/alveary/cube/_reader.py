@@ -78,6 +78,8 @@ def chunk_fault(exc: Exception, cube: str, version: str, key: str) -> Exception:
 
 # Chunk fetches in flight per read; the store's own connection pool limits further.
 _MAX_INFLIGHT = 32
+# Reads of more than 1/_SCAN_FRACTION of the chunk cache's bytes do not fill it.
+_SCAN_FRACTION = 8
 
 
 class _Described:
@@ -360,6 +362,9 @@ class CubeVersion(_Described):
         if not plan.reads or plan.nzones == 0:
             return out
         sem = asyncio.Semaphore(_MAX_INFLIGHT)
+        # A scan larger than a fraction of the cache would only push out the chunks small
+        # requests share: its chunks are used (cached ones too) but not kept.
+        keep = cache is not None and plan.max_bytes <= cache.max_bytes // _SCAN_FRACTION
 
         async def one(cr: ChunkRead) -> None:
             key = (self.url, self.version, cr.array, cr.coords)
@@ -371,7 +376,7 @@ class CubeVersion(_Described):
                         data = np.asarray(await arr.getitem(cr.selection))
                 except Exception as exc:
                     raise chunk_fault(exc, self.id, self.version, self.object_key(cr)) from exc
-                if cache is not None:
+                if keep and cache is not None:
                     cache.put(key, data)
             where: tuple[Any, ...] = (cr.in_time, *cr.cells)
             raw = data[where]
