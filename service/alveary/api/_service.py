@@ -2,7 +2,8 @@
 
 :class:`Service` holds the catalogue, the chunk cache, the limits and the metrics; its
 :meth:`Service.answer` is the path every cube query takes: access -> resolve (no I/O) ->
-ETag -> 304 or plan (no I/O, limits checked) -> execute (the only store reads) -> encode.
+ETag -> 304 or admission at the cell gate (weighed by an estimate) -> plan (no I/O,
+limits checked) -> execute (the only store reads) -> encode.
 The native API encodes with :func:`alveary.api._encode.encode`; another surface (OGC API -
 EDR) passes its own :data:`Encoder`, and takes the same path otherwise.
 
@@ -17,6 +18,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import logging
+import sys
 import time
 from collections.abc import AsyncIterator, Awaitable, Callable, Iterator
 from typing import Any
@@ -56,6 +58,7 @@ from alveary.query import (
     ServedCube,
     StatsResult,
     ZoneResult,
+    estimate_cells,
     execute,
     make_plan,
     resolve,
@@ -72,6 +75,8 @@ log = logging.getLogger("alveary.api")
 _INLINE_ROWS = 2_000
 # Requests under this many cells never wait at the gate.
 _SMALL_CELLS = 20_000
+# Seconds a thread holds the GIL while another waits for it (see Service.start).
+_SWITCH_INTERVAL = 0.001
 # Seconds /readyz may take; past it the answer is "not ready".
 READY_DEADLINE = 2.0
 
@@ -106,6 +111,10 @@ class Service:
         self._refresher: asyncio.Task[None] | None = None
 
     async def start(self) -> None:
+        # Worker threads (planning, decoding, encoding) give the GIL back to the event
+        # loop after at most this long, so health probes and small answers are not kept
+        # waiting behind a heavy answer (Python's default is 5 ms).
+        sys.setswitchinterval(_SWITCH_INTERVAL)
         status = await anyio.to_thread.run_sync(self.catalog.open_all)
         for cube_id, error in status.items():
             if error:
@@ -228,13 +237,22 @@ class Service:
             if key is not None:
                 self.answers.remember(key, etag)
             return Response(cached.body, media_type=cached.media_type, headers=headers)
-        plan = await self._plan(resolved)
+        # The gate comes before planning (planning a large area takes CPU seconds), weighed
+        # by an estimate from the area; a request estimated over what the gate ever admits
+        # is over the limits and is planned first, which refuses it cheaply.
+        plan: Plan | None = None
+        cells = estimate_cells(resolved)
+        if cells > self.gate.capacity:
+            plan = await self._plan(resolved)
+            cells = _cells(plan)
         try:
-            weight = await self.gate.acquire(_cells(plan))
+            weight = await self.gate.acquire(cells)
         except Busy:
             return self.busy()
         handed_over = False
         try:
+            if plan is None:
+                plan = await self._plan(resolved)
             deadline_at = time.monotonic() + self.settings.deadline
             try:
                 result = await execute(plan, self.cache, deadline=self.settings.deadline)

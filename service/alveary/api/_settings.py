@@ -120,10 +120,11 @@ class Settings(BaseSettings):
     deadline: float = Field(30.0, gt=0, description="Request deadline for store reads, seconds.")
     retry_after: int = Field(5, ge=1, description="Retry-After sent with 503, seconds.")
     max_cells_in_flight: int = Field(
-        20_000_000,
+        10_000_000,
         ge=1,
         description="Cells (zone x time step x variable) of large answers in flight per "
-        "process; more wait up to queue_wait seconds, then get 503.",
+        "process (default: one of the largest admissible answers, about 160 MiB at most); "
+        "more wait up to queue_wait seconds, then get 503.",
     )
     queue_wait: float = Field(2.0, ge=0, description="Seconds a large request may queue.")
     stream_rows: int = Field(

@@ -302,6 +302,9 @@ class CubeVersion(_Described):
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
         """Run a plan made by :meth:`plan` (on zarr's I/O loop, awaited from any loop).
 
+        Values ``(time, zone)`` in the variable's ``value_dtype`` (float32 for an unpacked
+        float32 variable, else float64), NaN where there is no data.
+
         When every chunk the plan names is in the cache the values are assembled right
         here, on the caller's loop: a warm read needs no hop to the I/O thread.
         """
@@ -330,7 +333,7 @@ class CubeVersion(_Described):
                 return None
             chunks.append(data)
         info = self.meta.variables[plan.variable]
-        out = np.full(plan.shape, np.nan, dtype=np.float64)
+        out = np.full(plan.shape, np.nan, dtype=info.value_dtype)
         for cr, data in zip(plan.reads, chunks, strict=True):
             cache.get((self.url, self.version, cr.array, cr.coords))  # counted as a hit
             where: tuple[Any, ...] = (cr.in_time, *cr.cells)
@@ -358,7 +361,7 @@ class CubeVersion(_Described):
     async def _execute(self, plan: ReadPlan, cache: ChunkCache | None) -> np.ndarray:
         cache = cache if cache is not None else self.cache
         info = self.meta.variables[plan.variable]
-        out = np.full(plan.shape, np.nan, dtype=np.float64)
+        out = np.full(plan.shape, np.nan, dtype=info.value_dtype)
         if not plan.reads or plan.nzones == 0:
             return out
         sem = asyncio.Semaphore(_MAX_INFLIGHT)

@@ -50,7 +50,7 @@ from alveary.query._models import (
     parse_vars,
     parse_zone,
 )
-from alveary.query._plan import Limits, Plan, Resolved, make_plan, resolve
+from alveary.query._plan import Limits, Plan, Resolved, estimate_cells, make_plan, resolve
 from alveary.query._result import ResultVariable, StatsResult, TimeAxis, ZoneResult
 from alveary.query._stats import STATISTICS, parse_stats, zone_statistics
 from alveary.query._steps import select_steps, step_bounds
@@ -123,6 +123,7 @@ __all__ = [
     "coords_area",
     "coords_lat_lon",
     "default_level",
+    "estimate_cells",
     "execute",
     "format_time",
     "make_plan",

@@ -49,7 +49,8 @@ class CubeSnapshot(Protocol):
         ...
 
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
-        """Values ``(time, zone)`` of a plan made by :meth:`plan` on this snapshot."""
+        """Values ``(time, zone)`` of a plan made by :meth:`plan` on this snapshot,
+        float32 or float64 (what holds the stored values exactly)."""
         ...
 
 

@@ -28,7 +28,11 @@ _INLINE_VALUES = 200_000
 
 
 async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarray]:
+    """variable -> (time, zone) values. Plain zone answers keep what the cube gives
+    (float32 for float32 variables: half the memory of a large answer); analyses and
+    statistics compute in float64."""
     r = plan.resolved
+    wide = plan.analysis is not None or bool(plan.stats)
     steps = r.t1 - r.t0
     n = plan.read_zones.size
     if steps == 0 or n == 0:
@@ -40,7 +44,10 @@ async def _read_all(plan: Plan, cache: ChunkCache | None) -> dict[str, np.ndarra
             out = await r.cube.execute_async(plan.reads[var], cache)
         except Exception as exc:
             raise as_domain_error(exc, f"chunks of {var!r}") from exc
-        return np.asarray(out, dtype=np.float64).reshape(steps, n)
+        out = np.asarray(out)
+        if wide or out.dtype not in (np.float32, np.float64):
+            out = out.astype(np.float64, copy=False)
+        return out.reshape(steps, n)
 
     if len(r.variables) == 1:  # nothing to overlap: no task to create and schedule
         arrays = [await one(r.variables[0])]

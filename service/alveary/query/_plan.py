@@ -43,7 +43,15 @@ from alveary.query._result import ResultVariable
 from alveary.query._steps import select_steps
 from alveary.query._time import select_times
 
-__all__ = ["Limits", "Plan", "Resolved", "finest_fitting_level", "make_plan", "resolve"]
+__all__ = [
+    "Limits",
+    "Plan",
+    "Resolved",
+    "estimate_cells",
+    "finest_fitting_level",
+    "make_plan",
+    "resolve",
+]
 
 
 @dataclass(frozen=True)
@@ -215,12 +223,49 @@ def _estimate_zones(area_m2: float, level: int) -> float:
     return area_m2 / grid.zone_area(level)
 
 
-def _precheck_area(area_m2: float, level: int, limits: Limits) -> None:
+def _precheck_area(area_m2: float, level: int, limits: Limits, steps: int) -> None:
     # An estimate from the area, generous enough never to refuse a request the exact
     # count would allow (the exact count is checked after enumeration).
     estimate = _estimate_zones(area_m2, level)
     if estimate > 1.25 * limits.max_zones + 64:
         _check("zones per request", estimate, limits.max_zones, approximate=True)
+    if steps and estimate > (1.25 * limits.max_cells) / steps + 64:
+        _check("time steps × zones", estimate * steps, limits.max_cells, approximate=True)
+
+
+def estimate_cells(resolved: Resolved) -> int:
+    """About how many (zone, time step, variable) cells the query reads, without
+    enumerating zones: an area query's area (clipped to the cube's coverage) over the
+    zone area, a disk's ring count, a point list's length.
+
+    Cheap (no zone enumeration, no I/O), so work can be admitted or refused before
+    planning; the plan's exact count may differ by the zones along the edges.
+    """
+    q = resolved.query
+    level = resolved.level
+    boxes = _boxes(resolved, level)
+    zones: float
+    if isinstance(q, PointQuery):
+        zones = 1.0
+    elif isinstance(q, PointsQuery):
+        zones = float(np.asarray(q.lat).size)
+    elif isinstance(q, DiskQuery):
+        zones = 3.0 * q.k * (q.k + 1) + 1
+    elif isinstance(q, RadiusQuery):
+        circle = math.pi * q.meters**2
+        if boxes is not None:
+            circle = min(circle, sum(bbox_area(*b) for b in boxes))
+        zones = _estimate_zones(circle, level)
+    elif isinstance(q, BboxQuery):
+        pieces = clip_bbox((q.west, q.south, q.east, q.north), boxes)
+        zones = _estimate_zones(sum(bbox_area(*p) for p in pieces), level)
+    elif isinstance(q, PolygonQuery):
+        area = clip_polygon(q.area, boxes)
+        zones = 0.0 if area is None else _estimate_zones(area.area_m2, level)
+    else:  # pragma: no cover
+        raise TypeError(f"not a query: {q!r}")
+    steps = max(0, resolved.t1 - resolved.t0)
+    return math.ceil(zones) * steps * len(resolved.variables)
 
 
 def _boxes(resolved: Resolved, level: int) -> tuple[Box, ...] | None:
@@ -246,6 +291,7 @@ def _locate(
     q = resolved.query
     level = resolved.level if level is None else level
     boxes = _boxes(resolved, level)
+    nsteps = resolved.t1 - resolved.t0
     if isinstance(q, PointQuery):
         if boxes is not None and not covered(boxes, q.lat, q.lon):
             raise _outside(resolved)
@@ -264,13 +310,13 @@ def _locate(
     if isinstance(q, RadiusQuery):
         circle = math.pi * q.meters**2
         if boxes is not None and sum(bbox_area(*b) for b in boxes) < circle:
-            _precheck_area(min(circle, sum(bbox_area(*b) for b in boxes)), level, limits)
+            _precheck_area(min(circle, sum(bbox_area(*b) for b in boxes)), level, limits, nsteps)
             found = radius_in_coverage(q.lat, q.lon, q.meters, level, boxes)
             if found is None:
                 raise _outside(resolved)
             ids, dist = found
         else:
-            _precheck_area(circle, level, limits)
+            _precheck_area(circle, level, limits, nsteps)
             ids, dist = grid.zones_in_radius(q.lat, q.lon, q.meters, level, return_distance=True)
             _check_covered(resolved, boxes, np.asarray(ids, dtype=np.uint64))
         order = np.lexsort((ids, dist))
@@ -279,7 +325,7 @@ def _locate(
         pieces = clip_bbox((q.west, q.south, q.east, q.north), boxes)
         if not pieces:
             raise _outside(resolved)
-        _precheck_area(sum(bbox_area(*p) for p in pieces), level, limits)
+        _precheck_area(sum(bbox_area(*p) for p in pieces), level, limits, nsteps)
         if len(pieces) == 1:
             return grid.zones_in_bbox(*pieces[0], level), {}
         parts = [np.asarray(grid.zones_in_bbox(*p, level), dtype=np.uint64) for p in pieces]
@@ -289,7 +335,7 @@ def _locate(
         area = clip_polygon(q.area, boxes)
         if area is None:
             raise _outside(resolved)
-        _precheck_area(area.area_m2, level, limits)
+        _precheck_area(area.area_m2, level, limits, nsteps)
         return grid.zones_in_polygon(area, level), {}
     if isinstance(q, PointsQuery):
         _check("points per request", q.lat.size, limits.max_points)

@@ -53,7 +53,8 @@ class ZoneResult:
     times:
         datetime64[s] (t,).
     values:
-        variable -> float64 (t, n); NaN where the cube has no data.
+        variable -> float64 (t, n), or float32 for plain values of a float32 variable;
+        NaN where the cube has no data.
     extra:
         Per-row columns that belong to the query: ``steps`` (disk), ``distance_m``
         (radius), ``point`` (multi-point: the index of the input point).
