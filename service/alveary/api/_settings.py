@@ -123,7 +123,7 @@ class Settings(BaseSettings):
         10_000_000,
         ge=1,
         description="Cells (zone x time step x variable) of large answers in flight per "
-        "process (default: one of the largest admissible answers, about 160 MiB at most); "
+        "process (default: one of the largest admissible answers; see reliability.md); "
         "more wait up to queue_wait seconds, then get 503.",
     )
     queue_wait: float = Field(2.0, ge=0, description="Seconds a large request may queue.")
