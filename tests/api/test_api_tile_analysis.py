@@ -349,3 +349,42 @@ def test_halo_over_the_limit_is_413_before_any_read(maps, s3_server, analytic_st
         assert r.status_code == 413, r.text
         assert "halo" in r.text
     assert chunk_gets(s3_server, mark, url) == []
+
+
+def test_climatology_and_anomaly_tiles_match_pandas(maps):
+    z, y, x, level = 4, 5, 8, 5
+    frame = series_frame(maps, "-3,38,26,59")
+    month_mean = frame.groupby(frame.index.month).mean()  # one year: the month's mean
+    lat, lon = proj_pixel_centres(z, y, x)
+    rows, cols = np.mgrid[4:256:10, 4:256:10]
+    zones = grid.point_to_zone(lat[rows, cols], lon[rows, cols], level).ravel()
+    scale = colour_scale("drift")
+    # climatology: the mean of the instant's month over the years
+    lo, hi = 0.1, 0.45
+    r = maps.get(
+        tile_path("series", z, y, x),
+        params={"level": level, "climatology": "month", "datetime": "2025-03-10T00:00:00Z"}
+        | {"range": f"{lo},{hi}", "colormap": "drift"},
+    )
+    assert r.status_code == 200, r.text
+    got = colour_values(decode(r.content), scale, lo, hi)[rows, cols].ravel()
+    expected = np.clip(month_mean.loc[3, zones].to_numpy(), lo, hi)
+    assert (np.abs(got - expected) <= (hi - lo) / 510 + 1e-9).mean() > 0.99
+    # anomaly of one day, on the default range: ±(stored range width), centred on zero
+    day = pd.Timestamp("2025-03-10")
+    west, south, east, north = mapcube.COVERAGE  # the stored range: every written value
+    clat, clon = grid.zone_to_point(grid.zones_in_bbox(west, south, east, north, level))
+    days = ((mapcube.SERIES_TIMES - mapcube.SERIES_TIMES[0]) / np.timedelta64(1, "D"))[:, None]
+    stored = mapcube.series_field(clat[None, :], clon[None, :], days)
+    width = float(np.nanmax(stored) - np.nanmin(stored))
+    r = maps.get(
+        tile_path("series", z, y, x),
+        params={"level": level, "anomaly": "month", "datetime": "2025-03-10T00:00:00Z"}
+        | {"colormap": "drift"},
+    )
+    assert r.status_code == 200, r.text
+    got = colour_values(decode(r.content), scale, -width, width)[rows, cols].ravel()
+    expected = (frame.loc[day, zones] - month_mean.loc[3, zones]).to_numpy()
+    has = ~np.isnan(expected)
+    assert (np.isnan(got) == ~has).mean() > 0.99
+    assert (np.abs(got[has] - expected[has]) <= width / 255 + 1e-9).mean() > 0.99
