@@ -285,6 +285,10 @@ def test_etag_carries_the_analysis(maps):
         headers={"If-None-Match": first.headers["etag"]},
     )
     assert again.status_code == 304
+    # a description carries the analysis into its tile templates
+    doc = maps.get("/collections/analytic/map/tiles", params={"focal": "mean", "focal_k": 2})
+    template = doc.json()["tiles"][0]
+    assert "focal=mean" in template and "focal_k=2" in template
 
 
 def test_vector_tile_values_are_the_disk_mean(maps):
