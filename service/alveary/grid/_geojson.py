@@ -44,6 +44,18 @@ def _meridian_crossings(start: Floats, end: Floats, meridian: Floats) -> Floats:
     return np.asarray(y, dtype=np.float64)
 
 
+def _from_cut(ring: Floats, edge: npt.NDArray[np.intp], turn: float) -> Floats:
+    """A closed ring round a pole (unwrapped longitudes spanning ``turn`` = ±360°, cut
+    points inserted after ``edge``) restarted at its cut point, so that it runs from a
+    meridian at an odd multiple of 180° to the same meridian ``turn`` further on: its
+    closure over the pole then lies along ±180°, and the ring folds into one piece."""
+    start = int(edge[0]) + 1 if edge.size else 0  # no crossing: it starts on the meridian
+    body = ring[:-1]
+    later = body[:start] + np.array([turn, 0.0])
+    rolled = np.vstack([body[start:], later])
+    return np.vstack([rolled, rolled[:1] + np.array([turn, 0.0])])
+
+
 def _cut(lon: Floats, lat: Floats) -> dict[str, Any]:
     """One zone's ring that crosses ±180 (or winds round a pole) as valid GeoJSON."""
     step = (np.diff(np.append(lon, lon[0])) + 180.0) % 360.0 - 180.0
@@ -58,7 +70,8 @@ def _cut(lon: Floats, lat: Floats) -> dict[str, Any]:
     meridian = 180.0 + 360.0 * np.maximum(k0, k1)[edge]
     cut = np.column_stack([meridian, _meridian_crossings(ring[edge], ring[edge + 1], meridian)])
     ring = np.insert(ring, edge + 1, cut, axis=0)
-    if turn:  # the zone holds a pole: close the ring over it along meridians
+    if turn:  # the zone holds a pole: close the ring over it along ±180°
+        ring = _from_cut(ring, edge, turn)
         pole = 90.0 if turn > 0 else -90.0
         ring = np.vstack([ring, [[ring[-1, 0], pole], [ring[0, 0], pole]], ring[:1]])
     parts = fold(shapely.Polygon(ring))
