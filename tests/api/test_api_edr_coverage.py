@@ -76,3 +76,50 @@ def test_inside_the_coverage_answers(client):
     # An unknown collection is still 404 with the EDR exception body.
     missing = client.get("/collections/elsewhere/position", params={"coords": "POINT(0 0)"})
     assert missing.status_code == 404 and missing.json()["code"] == "NotFound"
+
+
+def test_unknown_paths_and_methods_under_collections(client):
+    # OGC API - EDR exception.yaml: every error body has `code` (required) and
+    # `description`; RFC 9457 members stay beside them.
+    for method, path, status, code in [
+        ("GET", "/collections/district/nowhere", 404, "NotFound"),
+        ("GET", "/collections/district/position/extra", 404, "NotFound"),
+        ("DELETE", "/collections/district/position", 405, "OperationNotSupported"),
+        ("PUT", "/collections/district", 405, "OperationNotSupported"),
+    ]:
+        r = client.request(method, path)
+        assert r.status_code == status, (method, path, r.text)
+        assert r.headers["content-type"] == "application/problem+json"
+        body = r.json()
+        assert body["code"] == code and body["status"] == status
+        assert body["description"] == body["detail"]
+    # The native paths keep plain problem+json (RFC 9457).
+    assert "code" not in client.get("/cubes/district/nowhere").json()
+
+
+@pytest.mark.parametrize(
+    "params",
+    [
+        {"coords": "POINT(-36.1 30.55)"},
+        {"coords": "POINT(-36.1 30.55)", "parameter-name": "moisture", "level": "10"},
+        {"coords": "POINT(-36.1 30.55)", "datetime": "2025-01-02T00:00:00Z", "f": "GeoJSON"},
+        {"coords": "MULTIPOINT((-36.1 30.55), (-36.0 30.6))"},
+        {"coords": "POINT(-36.1 95)"},
+        {"coords": "POINT(10 45)"},
+        {"coords": "POINT(-36.1 30.55)", "parameter-name": "snow"},
+        {},
+    ],
+)
+def test_position_lane_answers_as_the_route(client, params):
+    # A plain position request takes the lean lane; with `crs` (CRS84, which changes
+    # nothing in the answer) the same request is answered by the route itself. Status,
+    # body and ETag must agree (OGC API - EDR: crs=CRS84 is the default).
+    lane = client.get("/collections/district/position", params=params)
+    route = client.get("/collections/district/position", params={**params, "crs": "OGC:CRS84"})
+    assert lane.status_code == route.status_code
+    if lane.status_code >= 400:  # error documents differ only in the request's id
+        assert {**lane.json(), "request_id": ""} == {**route.json(), "request_id": ""}
+    else:
+        assert lane.content == route.content
+    assert lane.headers.get("etag") == route.headers.get("etag")
+    assert lane.headers.get("content-type") == route.headers.get("content-type")

@@ -20,6 +20,7 @@ from alveary.api._ratelimit import RateLimit, RateLimitMiddleware
 from alveary.api._requestlog import RequestLogMiddleware, access_logger
 from alveary.api._routes_cubes import install_point_lane
 from alveary.api._routes_cubes import router as cubes_router
+from alveary.api._routes_edr import install_position_lane
 from alveary.api._routes_edr import router as edr_router
 from alveary.api._routes_maps import router as maps_router
 from alveary.api._routes_meta import router as meta_router
@@ -119,6 +120,7 @@ def create_app(settings: Settings, catalog: Catalog | None = None) -> FastAPI:
     install_handlers(app, settings.retry_after)
     app.include_router(meta_router)
     install_point_lane(app)
+    install_position_lane(app)
     app.include_router(cubes_router)
     app.include_router(zones_router)
     app.include_router(maps_router)

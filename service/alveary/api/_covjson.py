@@ -31,6 +31,7 @@ on statistics, ``alveary:statistic``, ``alveary:zone_count`` and ``alveary:area_
 
 from __future__ import annotations
 
+import functools
 from typing import Any
 
 import numpy as np
@@ -260,29 +261,71 @@ def point_series(result: ZoneResult, *, time_axis: np.ndarray | None = None) -> 
 
     ``time_axis`` is the cube's whole time axis, for the ``bounds`` of the last step
     answered (default: the answer's own steps).
+
+    This is the answer of every single-point ``position`` query, so what repeats between
+    answers (the zone's centre and names, the time axis, the parameter objects) is kept
+    in small caches rather than worked out again.
     """
     _require_data(result)
     if result.zones.size != 1:
         raise ValueError(f"a PointSeries holds one zone, the answer has {result.zones.size}")
-    lat, lon = grid.zone_to_point(np.asarray(result.zones, dtype=np.uint64))
+    zone = int(result.zones[0])
+    lon, lat, text = _zone_place(zone)
     domain: dict[str, Any] = {
         "type": "Domain",
         "domainType": "PointSeries",
         "axes": {
-            "x": {"values": [float(lon[0])]},
-            "y": {"values": [float(lat[0])]},
-            "t": _time_axis(result.times, time_axis),
+            "x": {"values": [lon]},
+            "y": {"values": [lat]},
+            "t": _cached_time_axis(result.times, time_axis),
         },
         "referencing": [_XY_SYSTEM, _T_SYSTEM],
+        f"{PREFIX}:zone": [zone],
+        f"{PREFIX}:zone_text": [text],
     }
-    domain.update(_zone_members(result))
+    for name, column in result.extra.items():
+        domain[f"{PREFIX}:{name}"] = np.asarray(column)
     return {
         "type": "Coverage",
         "domain": domain,
-        "parameters": {v: covjson_parameter(i) for v, i in result.variables.items()},
+        "parameters": {v: _parameter(i) for v, i in result.variables.items()},
         "ranges": {v: _range(_stored(result, v)[:, 0], ["t"]) for v in result.values},
         **_members(result),
     }
+
+
+@functools.lru_cache(maxsize=4096)
+def _zone_place(zone: int) -> tuple[float, float, str]:
+    """A zone's centre (lon, lat) and text id, for point answers (a field app asks for the
+    same few zones again and again)."""
+    ids = np.array([zone], dtype=np.uint64)
+    lat, lon = grid.zone_to_point(ids)
+    return float(lon[0]), float(lat[0]), str(grid.zone_to_text(ids)[0])
+
+
+@functools.lru_cache(maxsize=256)
+def _parameter(info: Any) -> dict[str, Any]:
+    """:func:`covjson_parameter`, kept per variable (only ever serialised, never changed)."""
+    return covjson_parameter(info)
+
+
+_TIME_AXES: dict[tuple[bytes, bytes], dict[str, Any]] = {}
+_TIME_AXES_MAX = 256
+
+
+def _cached_time_axis(times: np.ndarray, axis: np.ndarray | None) -> dict[str, Any]:
+    """:func:`_time_axis` of the steps of a point answer, kept for the next answer with the
+    same steps of the same axis (answers hold few steps; the keys are their bytes)."""
+    times = np.asarray(times, dtype="datetime64[s]")
+    full = b"" if axis is None else np.asarray(axis, dtype="datetime64[s]").tobytes()
+    key = (times.tobytes(), full)
+    found = _TIME_AXES.get(key)
+    if found is None:
+        found = _time_axis(times, axis)
+        if len(_TIME_AXES) >= _TIME_AXES_MAX:
+            _TIME_AXES.clear()
+        _TIME_AXES[key] = found
+    return found
 
 
 def multi_point_series(

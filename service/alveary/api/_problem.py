@@ -35,6 +35,7 @@ from alveary._errors import (
     StoreUnavailable,
     http_status,
 )
+from alveary.api._edr_problem import EXCEPTION_CODES
 
 __all__ = ["PROBLEM", "domain_response", "install_handlers", "problem_response"]
 
@@ -182,8 +183,12 @@ def install_handlers(app: FastAPI, retry_after: int) -> None:
         titles = {row.status: row.title for row in HTTP_STATUS}
         title = titles.get(exc.status_code) or HTTPStatus(exc.status_code).phrase
         detail = exc.detail if isinstance(exc.detail, str) else title
+        edr: dict[str, str] = {}
+        if exc.status_code in (404, 405) and request.url.path.startswith("/collections/"):
+            # OGC API - EDR: the exception body (code, description) beside problem+json
+            edr = {"code": EXCEPTION_CODES[exc.status_code], "description": detail}
         return problem_response(
-            exc.status_code, title, detail, headers=getattr(exc, "headers", None)
+            exc.status_code, title, detail, headers=getattr(exc, "headers", None), **edr
         )
 
     @app.exception_handler(Exception)

@@ -4,18 +4,18 @@ object from its parameters and hands it to :meth:`Service.answer`."""
 from __future__ import annotations
 
 from typing import Any
-from urllib.parse import parse_qsl, quote
+from urllib.parse import quote
 
 import numpy as np
 import orjson
 from fastapi import APIRouter, Depends, Request
 from starlette.responses import Response
-from starlette.routing import Route
-from starlette.types import Receive, Scope, Send
+from starlette.types import Scope
 
 from alveary._errors import InvalidInput, LimitExceeded
 from alveary.api._answers import request_key
 from alveary.api._encode import negotiate
+from alveary.api._lane import Lane, finite_in, header, install_lane, plain_args
 from alveary.api._schemas import (
     CubeList,
     CubeMeta,
@@ -72,7 +72,7 @@ from alveary.query import (
     parse_zone,
 )
 
-__all__ = ["PointLane", "install_point_lane", "router"]
+__all__ = ["install_point_lane", "point_lane", "router"]
 
 router = APIRouter(tags=["cubes"], dependencies=[Depends(known_parameters())])
 
@@ -460,36 +460,19 @@ def _keys(body: Any) -> str:
 
 # -- the point lane -------------------------------------------------------------------------
 #
-# A field app sends a new point with every GPS fix, so point answers are rarely repeats:
-# each one pays for routing and parameter handling. The lane answers a well-formed point
-# request with the same work as query_point minus FastAPI's generic parameter machinery;
-# anything it does not recognise at a glance (an unknown or repeated parameter, a value
-# out of range or not a number, a format it does not name) is handed to query_point
-# itself, so every error is exactly the documented one.
+# GET /cubes/{cube}/point is answered first by a lean lane (alveary.api._lane): plainly
+# valid parameters are read here, anything else goes to query_point itself.
 
 _POINT_KEYS = frozenset({"lat", "lon", "level", "vars", "datetime", "f"})
 
 
-def _finite_in(text: str, low: float, high: float) -> float | None:
-    try:
-        value = float(text)
-    except ValueError:
-        return None
-    return value if low <= value <= high else None  # NaN fails both comparisons
-
-
 def _point_args(scope: Scope) -> dict[str, Any] | None:
     """The point parameters if they are plainly valid, else None (the route decides)."""
-    raw = scope.get("query_string", b"")
-    try:
-        pairs = parse_qsl(raw.decode("latin-1"), keep_blank_values=True, strict_parsing=True)
-    except ValueError:
+    args = plain_args(scope, _POINT_KEYS)
+    if args is None:
         return None
-    args = dict(pairs)
-    if len(args) != len(pairs) or not args.keys() <= _POINT_KEYS:
-        return None
-    lat = _finite_in(args.get("lat", ""), -90.0, 90.0)
-    lon = _finite_in(args.get("lon", ""), -180.0, 180.0)
+    lat = finite_in(args.get("lat", ""), -90.0, 90.0)
+    lon = finite_in(args.get("lon", ""), -180.0, 180.0)
     if lat is None or lon is None:
         return None
     level = args.get("level")
@@ -510,57 +493,29 @@ def _point_args(scope: Scope) -> dict[str, Any] | None:
     }
 
 
-def _header(scope: Scope, name: bytes) -> str | None:
-    for key, value in scope.get("headers", ()):
-        if key == name:
-            return str(value.decode("latin-1"))
-    return None
+async def _point_answer(scope: Scope, args: dict[str, Any]) -> Response:
+    """What query_point answers for plainly valid parameters."""
+    service: Service = scope["app"].state.service
+    sel = make_selection(args["level"], args["vars"], args["datetime"])
+    fmt = negotiate(args["f"], header(scope, b"accept"), CUBE_FORMATS)
+    query = PointQuery(args["lat"], args["lon"], sel)
+    cube = scope["path_params"]["cube"]
+    credentials = await service.credentials(scope)
+    return await service.answer(
+        cube,
+        query,
+        fmt,
+        header(scope, b"if-none-match"),
+        credentials=credentials,
+        key=request_key(scope),
+    )
 
 
-class PointLane:
-    """An ASGI app for ``GET /cubes/{cube}/point``, placed before the routers."""
-
-    def __init__(self) -> None:
-        self._route: Any = None
-
-    def _query_point_route(self, app: Any) -> Any:
-        if self._route is None:
-            stack = list(app.router.routes)
-            while stack:
-                route = stack.pop(0)
-                inner = getattr(route, "original_router", None)
-                if inner is not None:
-                    stack[:0] = list(inner.routes)
-                elif getattr(route, "operation_id", None) == "query_point":
-                    self._route = route
-                    break
-        return self._route
-
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        args = _point_args(scope)
-        if args is None:
-            route = self._query_point_route(scope["app"])
-            scope["route"] = route
-            await route.handle(scope, receive, send)
-            return
-        scope["alveary.operation"] = "query_point"
-        service: Service = scope["app"].state.service
-        sel = make_selection(args["level"], args["vars"], args["datetime"])
-        fmt = negotiate(args["f"], _header(scope, b"accept"), CUBE_FORMATS)
-        query = PointQuery(args["lat"], args["lon"], sel)
-        cube = scope["path_params"]["cube"]
-        credentials = await service.credentials(scope)
-        response = await service.answer(
-            cube,
-            query,
-            fmt,
-            _header(scope, b"if-none-match"),
-            credentials=credentials,
-            key=request_key(scope),
-        )
-        await response(scope, receive, send)
+def point_lane() -> Lane[dict[str, Any]]:
+    """The lane of ``GET /cubes/{cube}/point``."""
+    return Lane("query_point", _point_args, _point_answer)
 
 
 def install_point_lane(app: Any) -> None:
     """Put the point lane in front of the routers (call before including them)."""
-    app.router.routes.append(Route("/cubes/{cube}/point", PointLane(), methods=["GET"]))
+    install_lane(app, "/cubes/{cube}/point", point_lane())

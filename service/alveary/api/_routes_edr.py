@@ -22,7 +22,7 @@ the native paths, and is left out of ``/collections``.
 from __future__ import annotations
 
 import hashlib
-from collections.abc import Callable, Coroutine, Mapping
+from collections.abc import Awaitable, Callable, Coroutine, Mapping
 from dataclasses import dataclass
 from typing import Annotated, Any
 
@@ -32,6 +32,7 @@ from fastapi import APIRouter, Header, Path, Query, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.routing import APIRoute
 from starlette.responses import Response
+from starlette.types import Scope
 
 from alveary._context import REQUEST_ID
 from alveary._errors import AlvearyError, InvalidInput, NotFound, StoreUnavailable
@@ -52,6 +53,7 @@ from alveary.api._edr_docs import (
 )
 from alveary.api._edr_problem import edr_error, exception_body
 from alveary.api._encode import encode
+from alveary.api._lane import Lane, header, install_lane, plain_args
 from alveary.api._openapi30 import openapi_30
 from alveary.api._service import Encoder, Service
 from alveary.grid import MAX_LEVEL
@@ -83,7 +85,7 @@ from alveary.query import (
     Query as CubeQuery,
 )
 
-__all__ = ["router"]
+__all__ = ["edr_guard", "install_position_lane", "router"]
 
 PROBLEM = "application/problem+json"
 _JSON = "application/json"
@@ -99,19 +101,29 @@ class EdrRoute(APIRoute):
         known = {p.alias for p in self.dependant.query_params}
 
         async def guarded(request: Request) -> Response:
-            try:
+            async def checked() -> Response:
                 _check_names(request, known)
                 return await handler(request)
-            except NotFound as exc:
-                if exc.kind == "data":  # wholly outside the cube's coverage: no data
-                    return Response(status_code=204)
-                return _error_response(exc, request)
-            except AlvearyError as exc:
-                return _error_response(exc, request)
+
+            try:
+                return await edr_guard(request.scope, checked())
             except RequestValidationError as exc:
                 return _validation_response(exc)
 
         return guarded
+
+
+async def edr_guard(scope: Scope, answering: Awaitable[Response]) -> Response:
+    """The response of an EDR operation: domain errors as EDR error documents, a query
+    wholly outside the cube's coverage as 204 (the route's and the lane's alike)."""
+    try:
+        return await answering
+    except NotFound as exc:
+        if exc.kind == "data":  # wholly outside the cube's coverage: no data
+            return Response(status_code=204)
+        return _error_response(exc, scope)
+    except AlvearyError as exc:
+        return _error_response(exc, scope)
 
 
 def _check_names(request: Request, known: set[str]) -> None:
@@ -132,11 +144,11 @@ def _problem(status: int, body: dict[str, Any], headers: dict[str, str] | None =
     return Response(content, status_code=status, media_type=PROBLEM, headers=headers)
 
 
-def _error_response(exc: AlvearyError, request: Request) -> Response:
+def _error_response(exc: AlvearyError, scope: Scope) -> Response:
     status, body = edr_error(exc)
     headers = None
     if isinstance(exc, StoreUnavailable):
-        service: Service = request.app.state.service
+        service: Service = scope["app"].state.service
         headers = {"Retry-After": str(service.settings.retry_after)}
     return _problem(status, body, headers)
 
@@ -442,7 +454,7 @@ def _encoder(fmt: str, media: str, geometry: dict[str, Any] | None) -> Encoder:
 
 
 async def _answer(
-    request: Request,
+    scope: Scope,
     cube: str,
     query: CubeQuery,
     common: _Common,
@@ -452,7 +464,7 @@ async def _answer(
     geometry: dict[str, Any] | None = None,
 ) -> Response:
     """Hand a query to the service with the EDR encoder."""
-    service: Service = request.app.state.service
+    service: Service = scope["app"].state.service
     fmt = edr_format(common.f, accept)
     media = covjson_media_type(accept) if fmt == "covjson" else ""
     stats = isinstance(query, BboxQuery | PolygonQuery) and bool(query.stats)
@@ -473,9 +485,9 @@ async def _answer(
         query,
         name,
         if_none_match,
-        credentials=await service.credentials(request.scope),
+        credentials=await service.credentials(scope),
         geometry=geometry if stats else None,
-        key=request_key(request.scope),
+        key=request_key(scope),
         encoder=_encoder(fmt, media, geometry if stats else None),
         operation=operation,
     )
@@ -537,7 +549,51 @@ async def position(
 ) -> Response:
     common = _Common(datetime, parameter_name, parameter_names, crs, f, level, z)
     query = _position_query(coords, common, request.app.state.service)
-    return await _answer(request, cube, query, common, accept, if_none_match, "edr_position")
+    return await _answer(request.scope, cube, query, common, accept, if_none_match, "edr_position")
+
+
+# The hot path of field apps (one POINT per GPS fix) takes a lean lane (alveary.api._lane):
+# the route's own functions and error handling without FastAPI's parameter machinery;
+# an unknown or repeated parameter, crs, z or a level that is not plainly an integer in
+# range goes to the route.
+_POSITION_KEYS = frozenset(
+    {"coords", "datetime", "parameter-name", "parameter_names", "f", "level"}
+)
+
+
+def _position_args(scope: Scope) -> dict[str, Any] | None:
+    args: dict[str, Any] | None = plain_args(scope, _POSITION_KEYS)
+    if args is None or len(scope["path_params"]["cube"]) > 64:
+        return None
+    level = args.get("level")
+    if level is not None:
+        if not (level.isdigit() and int(level) <= MAX_LEVEL):
+            return None
+        args["level"] = int(level)
+    return args
+
+
+async def _position_lane(scope: Scope, args: dict[str, Any]) -> Response:
+    async def answering() -> Response:
+        common = _Common(
+            args.get("datetime"),
+            args.get("parameter-name"),
+            args.get("parameter_names"),
+            f=args.get("f"),
+            level=args.get("level"),
+        )
+        query = _position_query(args.get("coords"), common, scope["app"].state.service)
+        accept, if_none_match = header(scope, b"accept"), header(scope, b"if-none-match")
+        cube = scope["path_params"]["cube"]
+        return await _answer(scope, cube, query, common, accept, if_none_match, "edr_position")
+
+    return await edr_guard(scope, answering())
+
+
+def install_position_lane(app: Any) -> None:
+    """Put the lane of ``GET /collections/{cube}/position`` in front of the routers."""
+    lane = Lane("edr_position", _position_args, _position_lane)
+    install_lane(app, "/collections/{cube}/position", lane)
 
 
 @router.get(
@@ -571,7 +627,7 @@ async def radius(
     lat, lon = coords_lat_lon(parse_coords(text, ("Point",)))
     metres = within_metres(within, within_units)
     query = RadiusQuery(float(lat[0]), float(lon[0]), metres, False, common.selection())
-    return await _answer(request, cube, query, common, accept, if_none_match, "edr_radius")
+    return await _answer(request.scope, cube, query, common, accept, if_none_match, "edr_radius")
 
 
 @router.get(
@@ -603,7 +659,7 @@ async def area(
     common = _Common(datetime, parameter_name, parameter_names, crs, f, level, z)
     query, given = _area_query(coords, stats, common, request.app.state.service)
     return await _answer(
-        request, cube, query, common, accept, if_none_match, "edr_area", geometry=given
+        request.scope, cube, query, common, accept, if_none_match, "edr_area", geometry=given
     )
 
 
@@ -637,7 +693,7 @@ async def cube_query(
     west, south, east, north = parse_bbox(box)
     query = BboxQuery(west, south, east, north, parse_stats(stats), common.selection())
     return await _answer(
-        request,
+        request.scope,
         cube,
         query,
         common,
@@ -727,7 +783,7 @@ async def position_post(
     body = await _body(request, set())
     common = _common_of(body, f)
     query = _position_query(body.get("coords"), common, request.app.state.service)
-    return await _answer(request, cube, query, common, accept, if_none_match, "edr_position")
+    return await _answer(request.scope, cube, query, common, accept, if_none_match, "edr_position")
 
 
 @router.post(
@@ -749,5 +805,5 @@ async def area_post(
     service = request.app.state.service
     query, given = _area_query(body.get("coords"), body.get("stats"), common, service)
     return await _answer(
-        request, cube, query, common, accept, if_none_match, "edr_area", geometry=given
+        request.scope, cube, query, common, accept, if_none_match, "edr_area", geometry=given
     )

@@ -37,20 +37,31 @@ from alveary.api._service import Service
 from alveary.api._tileset import map_tiles_document, vector_tiles_document
 from alveary.api.deps import (
     AcceptHeader,
+    AggParam,
+    AnomalyParam,
+    ClimatologyParam,
     CubeId,
     DatetimeParam,
+    EveryParam,
+    FocalKParam,
+    FocalParam,
     IfNoneMatch,
+    KernelParam,
     LevelParam,
     VarsParam,
     known_parameters,
+    make_selection,
 )
 from alveary.query import (
     CubeSnapshot,
     ResolvedTile,
+    Selection,
     TilePlan,
-    parse_datetime,
+    analysed_range,
     parse_vars,
+    plan_analysed_zones,
     plan_tile,
+    read_analysed_values,
     read_tile,
     read_zone_values,
     resolve_tile,
@@ -67,6 +78,8 @@ router = APIRouter(tags=["maps"])
 STATIC = Path(__file__).resolve().parent / "static"
 _VECTOR_TARGET_PIXELS = 16.0
 _TMS = "WebMercatorQuad"
+# the analysis parameters a tile takes (carried from a description into its templates)
+_ANALYSIS = ("focal", "focal_k", "kernel", "every", "agg", "climatology", "anomaly")
 
 TileZ = Annotated[int, Query(include_in_schema=False)]
 ColormapParam = Annotated[
@@ -83,7 +96,8 @@ RangeParam = Annotated[
     Query(
         alias="range",
         description="min,max of the colour scale; default: the variable's range recorded "
-        "when the cube was built (at the tile's level).",
+        "when the cube was built (at the tile's level), carried through the analysis "
+        "(see the maps documentation); required with focal=gradient.",
         max_length=100,
         examples=["0.05,0.45"],
     ),
@@ -150,6 +164,51 @@ async def _range(
     return found
 
 
+def _tile_selection(
+    service: Service,
+    time: str | None,
+    focal: str | None,
+    focal_k: str | None,
+    kernel: str | None,
+    every: str | None,
+    agg: str | None,
+    climatology: str | None,
+    anomaly: str | None,
+) -> Selection:
+    """``datetime`` and the analysis of a tile, checked as for every cube query."""
+    return make_selection(
+        None,
+        None,
+        time,
+        focal=focal,
+        focal_k=focal_k,
+        kernel=kernel,
+        every=every,
+        agg=agg,
+        climatology=climatology,
+        anomaly=anomaly,
+        max_focal_k=service.limits.max_focal_k,
+    )
+
+
+async def _tile_range(
+    service: Service, cube_id: str, snap: CubeSnapshot, resolved: ResolvedTile, given: str | None
+) -> tuple[float, float]:
+    """The colour range: ``range``, else the stored range carried through the analysis."""
+    found = parse_range(given)
+    if found is not None:
+        return found
+    lo, hi = await _range(service, cube_id, snap, resolved.variable, resolved.level)
+    a = resolved.analysis
+    if a is None:
+        return lo, hi
+    sel = a.selection
+    carried = analysed_range(lo, hi, sel.focal, sel.timeagg, a.period_steps)
+    if carried is None:
+        raise InvalidInput("range", None, "min,max: required with focal=gradient (units per metre)")
+    return carried
+
+
 def _tile_query(request: Request, names: tuple[str, ...]) -> dict[str, str]:
     """The query parameters a description carries into its tile templates."""
     return {k: v for k, v in request.query_params.items() if k in names and v}
@@ -183,7 +242,7 @@ async def map_tilesets(request: Request, cube: CubeId) -> Response:
     credentials = await service.credentials(request.scope)
     source = service.source_for(cube, credentials)
     snap = service.cube_for(cube, credentials).snapshot()
-    query = _tile_query(request, ("vars", "datetime", "colormap", "range", "level"))
+    query = _tile_query(request, ("vars", "datetime", "colormap", "range", "level", *_ANALYSIS))
     doc = map_tiles_document(
         cube,
         title=source.title or snap.title or cube,
@@ -241,21 +300,36 @@ async def map_tile(
     level: LevelParam = None,
     colormap: ColormapParam = None,
     range_: RangeParam = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     service = _service(request)
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
+    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
     resolved = resolve_tile(
-        cube, snap, z, y, x, variables=parse_vars(vars_), time=parse_datetime(time), level=level
+        cube,
+        snap,
+        z,
+        y,
+        x,
+        variables=parse_vars(vars_),
+        time=sel.time,
+        level=level,
+        focal=sel.focal,
+        timeagg=sel.timeagg,
     )
     scale = colour_scale(colormap)
-    lo, hi = parse_range(range_) or await _range(
-        service, cube, snap, resolved.variable, resolved.level
-    )
+    lo, hi = await _tile_range(service, cube, snap, resolved, range_)
     etag = etag_for(f"{resolved.key}|{scale.name}|{lo!r},{hi!r}", "png")
 
     async def make() -> tuple[bytes, str]:
-        plan = await anyio.to_thread.run_sync(plan_tile, resolved, service.pixels)
+        plan = await anyio.to_thread.run_sync(plan_tile, resolved, service.pixels, service.limits)
         values = await read_tile(plan, service.cache, deadline=service.settings.deadline)
         body = await anyio.to_thread.run_sync(_draw, plan, values, scale, lo, hi)
         return body, PNG_MEDIA_TYPE
@@ -285,7 +359,7 @@ async def vector_tilesets(request: Request, cube: CubeId) -> Response:
     credentials = await service.credentials(request.scope)
     source = service.source_for(cube, credentials)
     snap = service.cube_for(cube, credentials).snapshot()
-    query = _tile_query(request, ("vars", "datetime", "level"))
+    query = _tile_query(request, ("vars", "datetime", "level", *_ANALYSIS))
     doc = vector_tiles_document(
         cube,
         title=source.title or snap.title or cube,
@@ -340,28 +414,47 @@ async def vector_tile(
     vars_: VarsParam = None,
     time: DatetimeParam = None,
     level: LevelParam = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
     if_none_match: IfNoneMatch = None,
 ) -> Response:
     service = _service(request)
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = _vector_variables(snap, parse_vars(vars_))
+    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
     resolved = resolve_tile(
         cube,
         snap,
         z,
         y,
         x,
-        time=parse_datetime(time),
+        time=sel.time,
         level=level,
         target=_VECTOR_TARGET_PIXELS,
+        focal=sel.focal,
+        timeagg=sel.timeagg,
     )
     etag = etag_for(f"{resolved.key}|{','.join(names)}", "mvt")
 
+    async def values_of(zones: np.ndarray) -> dict[str, np.ndarray]:
+        a, deadline = resolved.analysis, service.settings.deadline
+        if a is None or zones.size == 0:
+            return await read_zone_values(
+                snap, names, zones, resolved.step, service.cache, deadline=deadline
+            )
+        plan, reads, _ = await anyio.to_thread.run_sync(
+            plan_analysed_zones, snap, names, zones, a, service.limits
+        )
+        return await read_analysed_values(snap, a, plan, reads, service.cache, deadline=deadline)
+
     async def make() -> tuple[bytes, str]:
         zones = await anyio.to_thread.run_sync(_zones_of, resolved, service.limits.max_zones)
-        values = await read_zone_values(
-            snap, names, zones, resolved.step, service.cache, deadline=service.settings.deadline
-        )
+        values = await values_of(zones)
         keep = np.zeros(zones.size, dtype=bool)
         for column in values.values():
             keep |= np.isfinite(column)

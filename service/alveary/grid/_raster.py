@@ -1,17 +1,24 @@
 """The zones under every point of a raster (a grid of latitudes by longitudes, such as a
 map tile's pixel centres), equal to :func:`point_to_zone` at every point but cheaper.
 
+A raster's points are separable: a point's unit vector is (cos β_r cos λ_c,
+cos β_r sin λ_c, sin β_r), so the authalic latitude and the sines and cosines are worked
+out once per row and once per column, never per point.
+
 The chart coordinates of a raster's points change smoothly from point to point except
 where the face or the 120° sector of Snyder's projection changes. So the projection is
 run exactly only on every ``step``-th row and column; inside each cell of that coarse
 raster whose four corners share one face and one sector, the points' lattice
 coordinates are interpolated (bilinearly: linear along rows, then along columns). The
-interpolation error is bounded from the coarse raster's own second differences (the
-error of a linear interpolation over a span h is at most h²·|f''|/8, and a second
-difference is h²·f''), taken over the whole raster and doubled; every point whose
-interpolated coordinates lie within that bound of a place where hexagon rounding could
-go another way (a half-integer, or a tie between the cube coordinates' distances), and
-every point of a cell that spans two faces or sectors, is projected exactly.
+error of that interpolation in a cell is at most (h_r²·max|f_rr| + h_c²·max|f_cc|)/8;
+each cell's bound is taken from the second differences (h²·f'') of the coarse triples
+that touch it, and from the gap between the interpolated and the exact coordinates at
+the cell's middle point, whichever is larger, doubled. Every point whose interpolated
+coordinates lie within its cell's bound of the edge of the hexagon they round to, every
+point of a cell that spans two faces or sectors (or whose middle point lies on another),
+and every point of a cell with no second difference to bound it, is projected exactly.
+The per-point steps work on offsets from an integer base per cell, in float32 (the
+bound grows by their rounding), and add the cell's part of the id once per cell.
 """
 
 from __future__ import annotations
@@ -21,11 +28,12 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from alveary.grid._authalic import geodetic_to_xyz
+from alveary.grid._authalic import _beta_half_colat
 from alveary.grid._checks import check_lat_lon
 from alveary.grid._ids import check_level
-from alveary.grid._lattice import _OFFSET, _TO_ST_SECTOR, BLOCK, chart_to_ids, xyz_to_ids
+from alveary.grid._lattice import _OFFSET, _TO_ST_SECTOR, BLOCK, chart_to_ids, round_hex, xyz_to_ids
 from alveary.grid._snyder import face_of, forward_sector
+from alveary.grid._xp import ARRAYS
 
 __all__ = ["raster_to_zone"]
 
@@ -33,30 +41,53 @@ Ids = npt.NDArray[np.uint64]
 Floats = npt.NDArray[np.float64]
 
 #: Rows and columns of the coarse raster: every STEP-th one (and the last).
-STEP = 4
-#: Past this bound (lattice units) interpolation is not worth it: every point is exact.
+STEP = 8
+#: Past this bound (lattice units) interpolation is not worth it: the cell is exact.
 _MAX_ERROR = 0.05
+#: Least margin (lattice units): covers the rounding of the exact path's own arithmetic.
+_FLOOR = 1e-7
+#: Added to the bound for the float32 arithmetic of the per-point steps.
+_FLOOR32 = 1e-5
 
 
-def _exact(lat: Floats, lon: Floats, level: int) -> Ids:
-    """point_to_zone's own path for flat arrays of points."""
-    out = np.empty(lat.shape, dtype=np.uint64)
-    for s in range(0, lat.size, BLOCK):
-        block = slice(s, s + BLOCK)
-        out[block] = xyz_to_ids(geodetic_to_xyz(lat[block], lon[block]), level)
-    return out
+class _Parts:
+    """Per row cos and sin of the authalic latitude, per column of the longitude: the
+    factors of the points' unit vectors, each computed as ``geodetic_unit`` does."""
+
+    def __init__(self, la: Floats, lo: Floats) -> None:
+        half = _beta_half_colat(la, ARRAYS)
+        self.cb = np.sin(2.0 * half)
+        self.sb = np.copysign(np.cos(2.0 * half), la)
+        rad = np.radians(lo)
+        self.cl, self.sl = np.cos(rad), np.sin(rad)
+
+    def xyz(self, r: Any, c: Any) -> Floats:
+        """Unit vectors (..., 3) of the points (row r, column c); r and c broadcast."""
+        cb = self.cb[r]
+        x, y = cb * self.cl[c], cb * self.sl[c]
+        z = np.broadcast_to(self.sb[r], x.shape)
+        return np.stack([x, y, z], axis=-1)
+
+    def ids(self, r: Any, c: Any, level: int) -> Ids:
+        """point_to_zone's own path for points (row r, column c), flat index arrays."""
+        out = np.empty(np.shape(r), dtype=np.uint64)
+        for s in range(0, out.size, BLOCK):
+            block = slice(s, s + BLOCK)
+            out[block] = xyz_to_ids(self.xyz(r[block], c[block]), level)
+        return out
 
 
-def _chart(xyz: Floats, n: int) -> tuple[Any, Any, Floats, Floats]:
-    """(face, sector, a, b): lattice coordinates (chart coordinates times n) of unit
-    vectors, with the face and sector that gave them."""
+def _chart(xyz: Floats, n: int) -> tuple[Any, Floats, Floats]:
+    """(key, a, b): lattice coordinates (chart coordinates times n) of unit vectors, with
+    the face and sector that gave them as key = 3 * face + sector."""
     face = face_of(xyz)
     x, y, sector = forward_sector(xyz, face)
-    m = _TO_ST_SECTOR[3 * face + sector.astype(np.int64)]
+    key = 3 * face + sector.astype(np.int64)
+    m = _TO_ST_SECTOR[key]
     off = _OFFSET[face]
     s = m[..., 0, 0] * x + m[..., 0, 1] * y + off[..., 0]
     t = m[..., 1, 0] * x + m[..., 1, 1] * y + off[..., 1]
-    return face, sector.astype(np.int64), s * n, t * n
+    return key, s * n, t * n
 
 
 def _spans(size: int, step: int) -> tuple[npt.NDArray[np.int64], npt.NDArray[np.int64], Floats]:
@@ -68,19 +99,20 @@ def _spans(size: int, step: int) -> tuple[npt.NDArray[np.int64], npt.NDArray[np.
     return coarse, cell.astype(np.int64), frac
 
 
-def _second_difference(v: Floats, same: npt.NDArray[np.bool_], axis: int) -> float:
-    """Largest |second difference| along an axis over triples within one face and sector."""
-    if v.shape[axis] < 3:
-        return 0.0
-    lo = [slice(None)] * 2
-    mid = [slice(None)] * 2
-    hi = [slice(None)] * 2
-    lo[axis], mid[axis], hi[axis] = slice(0, -2), slice(1, -1), slice(2, None)
-    d2 = np.abs(v[tuple(lo)] - 2.0 * v[tuple(mid)] + v[tuple(hi)])
-    first, second = [slice(None)] * 2, [slice(None)] * 2
-    first[axis], second[axis] = slice(0, -1), slice(1, None)
-    ok = same[tuple(first)] & same[tuple(second)]  # both pairs of the triple
-    return float(d2[ok].max(initial=0.0))
+def _curvature(v: Floats, key: Any, axis: int) -> Floats:
+    """Per coarse cell, the largest |second difference| along an axis over the coarse
+    triples within one face and sector that touch the cell (NaN where there is none)."""
+    u = np.moveaxis(v, axis, 0)
+    k = np.moveaxis(key, axis, 0)
+    t = np.full(u.shape, np.nan)
+    if u.shape[0] >= 3:
+        d2 = np.abs(u[:-2] - 2.0 * u[1:-1] + u[2:])
+        ok = (k[:-2] == k[1:-1]) & (k[1:-1] == k[2:])
+        t[1:-1] = np.where(ok, d2, np.nan)
+    # a cell between coarse lines i and i+1 is touched by the triples centred on both
+    along = np.fmax(t[:-1], t[1:])
+    cells = np.fmax(along[:, :-1], along[:, 1:])
+    return np.moveaxis(cells, 0, axis)
 
 
 def raster_to_zone(lat: Any, lon: Any, level: int, *, step: int = STEP) -> Ids:
@@ -103,56 +135,100 @@ def raster_to_zone(lat: Any, lon: Any, level: int, *, step: int = STEP) -> Ids:
     la, _ = check_lat_lon(la, np.zeros_like(la))
     _, lo = check_lat_lon(np.zeros_like(lo), lo, wrap=True)
     h, w = la.size, lo.size
+    parts = _Parts(la, lo)
     if h < 2 * step or w < 2 * step or step < 2:
-        full_lat, full_lon = np.broadcast_arrays(la[:, None], lo[None, :])
-        return _exact(full_lat.reshape(-1), full_lon.reshape(-1), level).reshape(h, w)
+        rr, cc = np.divmod(np.arange(h * w), w)
+        return parts.ids(rr, cc, level).reshape(h, w)
     n = 1 << level
     rows, rcell, rfrac = _spans(h, step)
     cols, ccell, cfrac = _spans(w, step)
-    glat, glon = np.broadcast_arrays(la[rows][:, None], lo[cols][None, :])
-    face, sector, a, b = _chart(geodetic_to_xyz(glat, glon), n)
-    key = face * 3 + sector
-    # cells whose four corners share a face and a sector, and pairs along each axis
+    key, a, b = _chart(parts.xyz(rows[:, None], cols[None, :]), n)
+    # cells whose four corners share a face and a sector
     along_r = key[:-1, :] == key[1:, :]
     along_c = key[:, :-1] == key[:, 1:]
     uniform = along_r[:, :-1] & along_r[:, 1:] & along_c[:-1, :] & along_c[1:, :]
-    # interpolation error bound from the coarse raster's second differences
-    err = 0.0
-    for v in (a, b):
-        err = max(err, _second_difference(v, along_r, 0) + _second_difference(v, along_c, 1))
-    bound = 2.0 * err / 8.0 + 1e-9
-    if bound > _MAX_ERROR or not uniform.any():
-        full_lat, full_lon = np.broadcast_arrays(la[:, None], lo[None, :])
-        return _exact(full_lat.reshape(-1), full_lon.reshape(-1), level).reshape(h, w)
-    # linear along rows, then along columns (= bilinear in each cell)
-    rf, cf = rfrac[:, None], cfrac[None, :]
-    a_r = a[rcell] * (1.0 - rf) + a[rcell + 1] * rf
-    b_r = b[rcell] * (1.0 - rf) + b[rcell + 1] * rf
-    ai = a_r[:, ccell] * (1.0 - cf) + a_r[:, ccell + 1] * cf
-    bi = b_r[:, ccell] * (1.0 - cf) + b_r[:, ccell + 1] * cf
-    # hexagon rounding (as round_hex), keeping the distances for the margins
-    ci = -ai - bi
-    ra, rb, rc = np.rint(ai), np.rint(bi), np.rint(ci)
-    da, db, dc = np.abs(ra - ai), np.abs(rb - bi), np.abs(rc - ci)
-    fix_a = (da > db) & (da > dc)
-    fix_b = (db > dc) & (da <= db)
-    ra = np.where(fix_a, -rb - rc, ra).astype(np.int64)
-    rb = np.where(fix_b, -ra - rc, rb).astype(np.int64)
-    # points where an error up to `bound` in a and b could change the rounding
-    risky = (da >= 0.5 - bound) | (db >= 0.5 - bound) | (dc >= 0.5 - 2.0 * bound)
-    risky |= np.abs(da - db) <= 2.0 * bound
-    risky |= np.abs(da - dc) <= 3.0 * bound
-    risky |= np.abs(db - dc) <= 3.0 * bound
-    risky |= ~uniform[rcell][:, ccell]
-    strip = (face // 4)[rcell][:, ccell]  # the cell's face (all four corners share it)
-    # ids of points their strip owns (0 < a <= 2n, 0 <= b < n) directly, as _ids.encode;
-    # the others (beyond a seam, or an apex) through the seam rules
-    out = (strip << (2 * level + 1)) + ((ra - 1) << level) + rb + (1 << (2 * level + 4))
-    others = (ra <= 0) | (ra > 2 * n) | (rb < 0) | (rb >= n)
-    if others.any():
-        out[others] = chart_to_ids(level, strip[others], ra[others], rb[others])
-    ids: Ids = np.asarray(out, dtype=np.uint64)
+    # each cell's error bound: second differences, and the error at its middle point
+    bound = (
+        np.maximum(
+            _curvature(a, key, 0) + _curvature(a, key, 1),
+            _curvature(b, key, 0) + _curvature(b, key, 1),
+        )
+        / 8.0
+    )
+    mr, mc = (rows[:-1] + rows[1:]) // 2, (cols[:-1] + cols[1:]) // 2
+    mkey, ma, mb = _chart(parts.xyz(mr[:, None], mc[None, :]), n)
+    fr = ((mr - rows[:-1]) / (rows[1:] - rows[:-1]))[:, None]
+    fc = ((mc - cols[:-1]) / (cols[1:] - cols[:-1]))[None, :]
+
+    def at_middle(v: Floats) -> Floats:
+        top = v[:-1, :-1] * (1.0 - fc) + v[:-1, 1:] * fc
+        bottom = v[1:, :-1] * (1.0 - fc) + v[1:, 1:] * fc
+        out: Floats = top * (1.0 - fr) + bottom * fr
+        return out
+
+    gap = np.maximum(np.abs(at_middle(a) - ma), np.abs(at_middle(b) - mb))
+    bound = 2.0 * np.maximum(bound, gap) + _FLOOR
+    smooth = uniform & (mkey == key[:-1, :-1]) & (bound <= _MAX_ERROR)  # NaN fails too
+    if not smooth.any():
+        rr, cc = np.divmod(np.arange(h * w), w)
+        return parts.ids(rr, cc, level).reshape(h, w)
+
+    # Each cell gets an integer base (its corners' least coordinates, floored), so the
+    # points' offsets from it are small and float32 holds them to about 1e-6: half the
+    # memory traffic of float64 in the per-point steps. The bound grows by _FLOOR32.
+    def corners_min(v: Floats) -> Floats:
+        out: Floats = np.floor(np.minimum(np.minimum(v[:-1, :-1], v[:-1, 1:]), v[1:, :-1]))
+        return np.minimum(out, np.floor(v[1:, 1:]))
+
+    base_a, base_b = corners_min(a), corners_min(b)
+    # linear along rows (small arrays: every row by the coarse columns), then along
+    # columns (= bilinear in each cell)
+    rf = rfrac[:, None]
+    cf = cfrac.astype(np.float32)
+
+    def interpolate(v: Floats, base: Floats) -> npt.NDArray[np.float32]:
+        v_r = v[rcell] * (1.0 - rf) + v[rcell + 1] * rf
+        left = (v_r[:, :-1] - base[rcell]).astype(np.float32)
+        slope = np.diff(v_r, axis=1).astype(np.float32)
+        out: npt.NDArray[np.float32] = np.take(left, ccell, axis=1)
+        out += np.take(slope, ccell, axis=1) * cf
+        return out
+
+    al, bl = interpolate(a, base_a), interpolate(b, base_b)
+    ra, rb = round_hex(al, bl, ARRAYS)
+    # Where the lattice point (ra, rb) is nearest, its hexagon in the offsets (u, v) is
+    # |2u + v| <= 1, |u + 2v| <= 1, |u - v| <= 1; an error up to m in both a and b moves
+    # 2u + v and u + 2v by up to 3m, u - v by up to 2m.
+    u, v = al - ra, bl - rb
+    reach = np.maximum(np.abs(u + u + v), np.abs(u + v + v))
+    cell_margin = np.where(smooth, bound + _FLOOR32, np.inf).astype(np.float32)
+    margin = np.take(cell_margin[rcell], ccell, axis=1)
+    risky = (reach > 1.0 - 3.0 * margin) | (np.abs(u - v) > 1.0 - 2.0 * margin)
+    # ids as _ids.encode of points their strip owns (0 < a <= 2n, 0 <= b < n), with the
+    # cell's part added once per cell
+    strip = key[:-1, :-1] // 12
+    ia, ib = base_a.astype(np.int64), base_b.astype(np.int64)
+    cell_id = (strip << (2 * level + 1)) + ((ia - 1) << level) + ib + (1 << (2 * level + 4))
+    out = np.take(cell_id[rcell], ccell, axis=1)
+    # the offsets in a cell span at most span + 2 lattice steps: int32 when that fits
+    span_a = np.ceil(np.max([a[:-1, :-1], a[:-1, 1:], a[1:, :-1], a[1:, 1:]], axis=0) - base_a)
+    span_b = np.ceil(np.max([b[:-1, :-1], b[:-1, 1:], b[1:, :-1], b[1:, 1:]], axis=0) - base_b)
+    widest = float(np.max(np.where(smooth, np.maximum(span_a, span_b), 0.0))) + 2.0
+    small = np.int32 if widest * (1 << level) < 2.0**30 else np.int64
+    offset = ra.astype(small) << level
+    offset += rb.astype(small)
+    out += offset
+    # cells whose points may round beyond their strip (a seam, or an apex): those points
+    # go through the seam rules
+    near = (ia < 2) | (ia + span_a + 1 > 2 * n) | (ib < 1) | (ib + span_b + 1 >= n)
+    near &= smooth
+    if near.any():
+        rr, cc = np.nonzero(np.take(near[rcell], ccell, axis=1) & ~risky)
+        pa = ra[rr, cc].astype(np.int64) + ia[rcell[rr], ccell[cc]]
+        pb = rb[rr, cc].astype(np.int64) + ib[rcell[rr], ccell[cc]]
+        out[rr, cc] = chart_to_ids(level, strip[rcell[rr], ccell[cc]], pa, pb).view(np.int64)
+    ids: Ids = out.view(np.uint64)
     rr, cc = np.nonzero(risky)
     if rr.size:
-        ids[rr, cc] = _exact(la[rr], lo[cc], level)
+        ids[rr, cc] = parts.ids(rr, cc, level)
     return ids
