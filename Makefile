@@ -30,7 +30,7 @@ lint: $(STAMP)
 
 ## Lint, then the whole suite (starts its own S3-protocol server and uvicorn on 127.0.0.1).
 test: lint
-	$(BIN)/python -m pytest -q
+	$(BIN)/python -m pytest -q -n auto --dist loadfile
 
 ## The tests that start no server, for quick feedback while working.
 test-fast: $(STAMP)

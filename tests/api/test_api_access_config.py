@@ -66,6 +66,8 @@ def test_keys_of_a_public_cube_are_refused(tmp_path):
         (f"secret.{KEY_ID} = 5", "<cube>.<key id>"),
         ("secret = [", "valid TOML"),
     ],
+    # stable ids (the key is new in each process; parallel workers must collect alike)
+    ids=["cut-hash", "plain-text", "huge-cost", "bad-key-id", "not-a-string", "bad-toml"],
 )
 def test_malformed_keys_file_names_the_problem(tmp_path, line, error):
     keys_file = tmp_path / "api-keys.toml"
