@@ -101,3 +101,36 @@ def test_a_client_sending_headers_slowly_is_closed_within_the_header_timeout(str
         sock.sendall(b"GET /healthz HTTP/1.1\r\nHost: x\r\n\r\n")
         assert sock.recv(4096).startswith(b"HTTP/1.1 200")
         assert closed_after(sock, 4.0) is not None
+
+
+def test_request_headers_over_16_kib_are_refused_and_the_connection_closed(streaming):
+    # RFC 6585 §5: 431 Request Header Fields Too Large. Headers under the limit are served
+    # (a 12 KiB cookie is ordinary), and a request whose body follows its headers in the
+    # same packet is not counted against the limit by its body.
+    def send(raw: bytes) -> bytes:
+        with socket.create_connection((streaming.host, streaming.port), timeout=5) as sock:
+            sock.sendall(raw)
+            chunks = []
+            while True:
+                try:
+                    data = sock.recv(65536)
+                except (ConnectionResetError, TimeoutError):
+                    break
+                if not data:
+                    break
+                chunks.append(data)
+            return b"".join(chunks)
+
+    big = b"X-Big: " + b"a" * 20_000 + b"\r\n"
+    reply = send(b"GET /healthz HTTP/1.1\r\nHost: x\r\n" + big + b"\r\n")
+    assert reply.startswith(b"HTTP/1.1 431"), reply[:100]
+    body = json.loads(reply.split(b"\r\n\r\n", 1)[1])
+    assert body["status"] == 431 and "16384" in body["detail"]
+    ok = b"Cookie: " + b"c" * 12_000 + b"\r\n"
+    reply = send(b"GET /healthz HTTP/1.1\r\nHost: x\r\nConnection: close\r\n" + ok + b"\r\n")
+    assert reply.startswith(b"HTTP/1.1 200"), reply[:100]
+    body = json.dumps({"lat": [45.0], "lon": [7.0]}).encode() + b" " * 30_000
+    head = b"POST /cubes/analytic/points HTTP/1.1\r\nHost: x\r\nConnection: close\r\n"
+    head += b"Content-Type: application/json\r\nContent-Length: %d\r\n\r\n" % len(body)
+    reply = send(head + body)
+    assert reply.startswith(b"HTTP/1.1 200"), reply[:300]

@@ -197,6 +197,18 @@ def _blocks(result: ZoneResult, block_rows: int) -> Iterator[slice]:
 
 def _zone_columns(result: ZoneResult, sel: slice) -> dict[str, list[Any]]:
     zones = result.zones[sel]
+    if zones.size == 1:  # a point's answer: plain numbers, no arrays
+        zone = int(zones[0])
+        lat1, lon1 = grid.zone_to_point(zone)
+        one: dict[str, list[Any]] = {
+            "zone": [zone],
+            "zone_text": [str(grid.zone_to_text(zone))],
+            "lat": [float(lat1)],
+            "lon": [float(lon1)],
+        }
+        for name, values in result.extra.items():
+            one[name] = values[sel].tolist()
+        return one
     lat, lon = grid.zone_to_point(zones) if zones.size else (np.zeros(0), np.zeros(0))
     cols: dict[str, list[Any]] = {
         "zone": zones.tolist(),

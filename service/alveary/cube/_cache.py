@@ -83,6 +83,16 @@ class ByteLRU(Generic[K, V]):
         with self._lock:
             return self._items.get(key)
 
+    def get_all(self, keys: list[K]) -> list[V] | None:
+        """The values of every key, counted as hits; None (nothing counted) if any is
+        missing."""
+        with self._lock:
+            values = [self._items.get(key) for key in keys]
+            if any(v is None for v in values):
+                return None
+            self.hits += len(values)
+            return values  # type: ignore[return-value]
+
     def get(self, key: K) -> V | None:
         """The value, or None; counted as a hit or a miss."""
         with self._lock:

@@ -200,6 +200,9 @@ class VariableInfo:
         """Stored values to float64 physical values, NaN where no data."""
         raw = np.asarray(raw)
         out = raw.astype(np.float64)
+        if raw.dtype.kind == "f" and self.scale_factor is None and self.add_offset is None:
+            if self._fill_is_nan():
+                return out  # NaN already means no data
         if self._fill_is_nan():
             missing = np.isnan(out)
         else:

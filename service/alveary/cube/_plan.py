@@ -9,7 +9,7 @@ import numpy as np
 from alveary._errors import GridError
 from alveary.cube._layout import STRIPS, LevelLayout
 
-__all__ = ["ChunkRead", "ReadPlan", "plan_cells"]
+__all__ = ["ChunkRead", "ReadPlan", "plan_cell", "plan_cells"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -127,6 +127,48 @@ def plan_cells(
     ]
     return ReadPlan(variable, int(layout.level), slice(t0, t1), int(region.size), tuple(reads))
 
+
+def plan_cell(
+    layout: LevelLayout,
+    prefix: str,
+    region: int,
+    i: int,
+    j: int,
+    time: slice,
+    itemsize: int,
+    variable: str = "",
+) -> ReadPlan:
+    """:func:`plan_cells` for one cell, in integer arithmetic (a point query's read).
+
+    Examples
+    --------
+    >>> from alveary.cube._layout import ChunkShape
+    >>> lay = LevelLayout(6, 100, ChunkShape(32, 64, 64))
+    >>> plan_cell(lay, "sm/6", 0, 70, 1, slice(0, 40), 4).keys
+    ('sm/6/strips/c/0/0/1/0', 'sm/6/strips/c/1/0/1/0')
+    >>> plan_cell(lay, "sm/6", 6, 0, 0, slice(99, 100), 4).keys
+    ('sm/6/apex/c/3/0',)
+    """
+    t0, t1 = int(time.start), int(time.stop)
+    if region < STRIPS:
+        rows, cols = int(layout.chunks.rows), int(layout.chunks.cols)
+        (rb, di), (cb, dj) = divmod(i, rows), divmod(j, cols)
+        array, chunk = f"{prefix}/strips", (region, rb, cb)
+        cells: tuple[np.ndarray, ...] = (_ZERO, np.array([di]), np.array([dj]))
+        nbytes = layout.strip_chunk_nbytes(itemsize)
+    elif region <= 6:
+        array, chunk, cells = f"{prefix}/apex", (0,), (np.array([region - 5]),)
+        nbytes = layout.apex_chunk_nbytes(itemsize)
+    else:
+        raise GridError("zones", region, "regions 0..6")
+    step = int(layout.chunks.time)
+    blocks = range(t0 // step, (t1 - 1) // step + 1) if t1 > t0 else range(0)
+    reads = tuple(_read(layout, array, (tb, *chunk), t0, t1, _ZERO, cells, nbytes) for tb in blocks)
+    return ReadPlan(variable, int(layout.level), slice(t0, t1), 1, reads)
+
+
+_ZERO = np.zeros(1, np.int64)
+_ZERO.flags.writeable = False
 
 _Group = tuple[str, tuple[int, ...], np.ndarray, tuple[np.ndarray, ...], int]
 

@@ -27,7 +27,7 @@ from alveary.cube._checksum import is_checksum_error
 from alveary.cube._layout import LevelLayout
 from alveary.cube._manifest import ResolvingStore
 from alveary.cube._meta import CubeMeta, VariableInfo
-from alveary.cube._plan import ChunkRead, ReadPlan, plan_cells
+from alveary.cube._plan import ChunkRead, ReadPlan, plan_cell, plan_cells
 from alveary.cube._store import CountingStore, normalize_url, open_store
 from alveary.cube._time import parse_time
 from alveary.cube._versions import POINTER_KEY, VERSIONS, read_manifest, read_pointer
@@ -281,15 +281,33 @@ class CubeVersion(_Described):
             )
         return info
 
-    def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
-        """The chunks a read would fetch, without any I/O (see :class:`ReadPlan`)."""
+    def plan(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        *,
+        steps: slice | None = None,
+    ) -> ReadPlan:
+        """The chunks a read would fetch, without any I/O (see :class:`ReadPlan`).
+
+        The time steps are ``start <= t <= end`` (:meth:`time_indices`), or ``steps``
+        when given (positions on the time axis, as a slice).
+        """
         info = self._variable(variable)
+        tsel = self.time_indices(start, end) if steps is None else steps
+        one = grid.zone_fields(zones)
+        if one is not None and one[0] in self._layouts:  # a point's read: no arrays
+            level, region, i, j = one
+            prefix = f"{variable}/{level}"
+            layout = self._layouts[level]
+            return plan_cell(layout, prefix, region, i, j, tsel, info.itemsize, variable)
         ids = np.atleast_1d(np.asarray(zones)).ravel()
         if ids.size and ids.dtype.kind not in "ui":
             raise GridError("zones", ids.dtype.name, "integer zone ids")
         ids = ids.astype(np.uint64)
         level = self._level_of(ids)
-        tsel = self.time_indices(start, end)
         if ids.size:
             _, region, i, j = grid.zone_to_index(ids)
         else:
@@ -308,7 +326,7 @@ class CubeVersion(_Described):
         When every chunk the plan names is in the cache the values are assembled right
         here, on the caller's loop: a warm read needs no hop to the I/O thread.
         """
-        warm = self._from_cache(plan, cache)
+        warm = self.read_cached(plan, cache)
         if warm is not None:
             return warm
         loop = _get_loop()
@@ -321,21 +339,23 @@ class CubeVersion(_Described):
             return await coro
         return await asyncio.wrap_future(asyncio.run_coroutine_threadsafe(coro, loop))
 
-    def _from_cache(self, plan: ReadPlan, cache: ChunkCache | None) -> np.ndarray | None:
-        """The plan's values if every chunk it names is cached, else None (no I/O)."""
+    def read_cached(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray | None:
+        """The values of a plan (as :meth:`execute_async`) if every chunk it names is in
+        the cache, else None: no I/O, no await."""
         cache = cache if cache is not None else self.cache
         if cache is None:
             return None
-        chunks = []
-        for cr in plan.reads:
-            data = cache.peek((self.url, self.version, cr.array, cr.coords))
-            if data is None:
-                return None
-            chunks.append(data)
+        chunks = cache.get_all([(self.url, self.version, cr.array, cr.coords) for cr in plan.reads])
+        if chunks is None:
+            return None
         info = self.meta.variables[plan.variable]
+        if len(chunks) == 1 and plan.nzones == 1 and plan.reads[0].out_time.start == 0:
+            cr = plan.reads[0]  # one zone, one chunk: its values are the answer
+            if cr.out_time.stop == plan.shape[0]:
+                values = info.decode(chunks[0][(cr.in_time, *cr.cells)])
+                return values.astype(info.value_dtype, copy=False).reshape(plan.shape)
         out = np.full(plan.shape, np.nan, dtype=info.value_dtype)
         for cr, data in zip(plan.reads, chunks, strict=True):
-            cache.get((self.url, self.version, cr.array, cr.coords))  # counted as a hit
             where: tuple[Any, ...] = (cr.in_time, *cr.cells)
             out[cr.out_time, cr.columns] = info.decode(data[where])
         return out
@@ -465,9 +485,17 @@ class Cube(_Described):
         """:meth:`CubeVersion.time_indices` of the current version."""
         return self._v.time_indices(start, end)
 
-    def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
+    def plan(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        *,
+        steps: slice | None = None,
+    ) -> ReadPlan:
         """:meth:`CubeVersion.plan` of the current version (no I/O)."""
-        return self._v.plan(variable, zones, start, end)
+        return self._v.plan(variable, zones, start, end, steps=steps)
 
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:
         """Run a plan on the current version (plan on :meth:`snapshot` to pin one)."""

@@ -124,12 +124,13 @@ def zone_to_point(zones: Any) -> tuple[Any, Any]:
     (58.397145, 11.25)
     """
     few = _one.zone_ints(zones)
-    if few is not None:  # one zone, or a handful: plain floats
+    if few is not None and not isinstance(zones, np.ndarray):  # one zone: plain floats
+        lat1, lon1 = _one.id_to_point(few[0])
+        return np.float64(lat1), np.float64(lon1)
+    if few is not None:  # a handful: one by one in plain floats
         lat, lon = (
             np.array(c, dtype=np.float64) for c in zip(*map(_one.id_to_point, few), strict=True)
         )
-        if not isinstance(zones, np.ndarray):
-            return lat[0], lon[0]
         return lat, lon
     ids = _ids.as_zones(zones)
     flat = ids.reshape(-1)
@@ -346,11 +347,13 @@ def zone_to_text(zones: Any) -> npt.NDArray[np.object_] | np.str_:
     >>> str(zone_to_text(index_to_zone(12, 1, 3021, 877)))
     '12b-3021-877'
     """
+    if not isinstance(zones, np.ndarray):
+        one = _one.zone_ints(zones)
+        if one is not None:
+            return np.str_(_ids.text_of(*_ids.decode_int(one[0])))  # type: ignore[misc]
     fields = _fields(zones)
     if fields is None:
         return _ids.to_text(_ids.as_zones(zones))
-    if not isinstance(zones, np.ndarray):
-        return np.str_(_ids.text_of(*(int(f) for f in fields)))
     return np.array(
         [_ids.text_of(*f) for f in zip(*(f.tolist() for f in fields), strict=True)], dtype=object
     )
@@ -376,6 +379,23 @@ def zone_to_index(zones: Any) -> tuple[Any, Any, Any, Any]:
     """
     fields = _fields(zones)
     return fields if fields is not None else _ids.decode(_ids.as_zones(zones))
+
+
+def zone_fields(zone: Any) -> tuple[int, int, int, int] | None:
+    """(level, region, i, j) as Python ints of one valid zone id, given as an int, a numpy
+    integer or a one-element integer array; None for anything else (a bad id, many zones),
+    which :func:`zone_to_index` then checks and answers. The cheap path for a point query.
+
+    >>> zone_fields(zone_from_text("12b-3021-877")), zone_fields(7), zone_fields([26, 26])
+    ((12, 1, 3021, 877), None, None)
+    """
+    if isinstance(zone, np.ndarray):
+        if zone.size != 1 or zone.dtype.kind not in "ui":
+            return None
+        zone = zone.reshape(-1)[0]
+    if isinstance(zone, bool | np.bool_) or not isinstance(zone, int | np.integer):
+        return None
+    return _ids.decode_int(int(zone))
 
 
 def index_to_zone(level: Any, region: Any, i: Any, j: Any) -> Ids:

@@ -58,10 +58,26 @@ def zone_ints(zones: Any, parameter: str = "zones") -> list[int] | None:
     return values
 
 
+def _nearest_face(x: float, y: float, z: float) -> int:
+    """The face whose centre is nearest, as the array code chooses it: the largest dot
+    product, unless the two largest are too close to call in plain floats, when the
+    array code's own product decides (a point on a face edge)."""
+    best, second, face = -2.0, -2.0, 0
+    for k, (cx, cy, cz) in enumerate(_CENTRES):
+        d = x * cx + y * cy + z * cz
+        if d > best:
+            best, second, face = d, best, k
+        elif d > second:
+            second = d
+    if best - second > 1e-12:
+        return face
+    return int(np.argmax(np.array([[x, y, z]]) @ FACE_CENTERS.T))
+
+
 def point_to_id(lat: float, lon: float, level: int) -> int:
     """The zone id of a checked geodetic point (degrees, longitude in [-180, 180])."""
     x, y, z = geodetic_unit(lat, lon, FLOATS)
-    face = int(np.argmax(np.array([[x, y, z]]) @ FACE_CENTERS.T))  # as the array code does
+    face = _nearest_face(x, y, z)
     c, e1, e2 = _CENTRES[face], _E1[face], _E2[face]
     px = x * e1[0] + y * e1[1] + z * e1[2]
     py = x * e2[0] + y * e2[1] + z * e2[2]

@@ -44,8 +44,22 @@ class CubeSnapshot(Protocol):
         """(min, max) of a variable's stored values at a level, recorded at build time."""
         ...
 
-    def plan(self, variable: str, zones: Any, start: Any = None, end: Any = None) -> ReadPlan:
-        """The chunks a read of ``zones`` over ``[start, end]`` needs (no I/O)."""
+    def plan(
+        self,
+        variable: str,
+        zones: Any,
+        start: Any = None,
+        end: Any = None,
+        *,
+        steps: slice | None = None,
+    ) -> ReadPlan:
+        """The chunks a read of ``zones`` over ``[start, end]`` (or the time steps
+        ``steps``) needs (no I/O)."""
+        ...
+
+    def read_cached(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray | None:
+        """:meth:`execute_async`'s values when every chunk of the plan is cached, else
+        None (no I/O)."""
         ...
 
     async def execute_async(self, plan: ReadPlan, cache: ChunkCache | None = None) -> np.ndarray:

@@ -132,7 +132,10 @@ class PointQuery:
     op = "point"
 
     def __post_init__(self) -> None:
-        grid.check_lat_lon(self.lat, self.lon)
+        lat, lon = self.lat, self.lon
+        if type(lat) is float and type(lon) is float and abs(lat) <= 90.0 and abs(lon) <= 180.0:
+            return  # plainly valid (NaN fails the comparisons); anything else is checked
+        grid.check_lat_lon(lat, lon)
 
     def key(self) -> str:
         return f"lat={self.lat!r};lon={self.lon!r}"

@@ -38,6 +38,7 @@ from alveary.query._models import (
     PolygonQuery,
     Query,
     RadiusQuery,
+    Selection,
 )
 from alveary.query._result import ResultVariable
 from alveary.query._steps import select_steps
@@ -133,6 +134,27 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
     """
     cube = catalog.get(cube_id).snapshot()
     sel = query.selection
+    # The binding depends on the selection and the version alone (not on where the
+    # query looks, unless a disk is centred on a given zone): made once per selection.
+    key = None if isinstance(query, DiskQuery) and query.zone is not None else sel
+    bound = _bindings.get((cube_id, cube.version, key)) if key is not None else None
+    if bound is None:
+        bound = _bind(cube, query)
+        if key is not None:
+            if len(_bindings) >= _MAX_BINDINGS:
+                _bindings.clear()
+            _bindings[(cube_id, cube.version, key)] = bound
+    return Resolved(cube_id, cube, cube.version, *bound, query)
+
+
+_Binding = tuple[int, tuple[str, ...], int, int]  # level, variables, t0, t1
+_bindings: dict[tuple[str, str, Selection], _Binding] = {}
+_MAX_BINDINGS = 4096
+
+
+def _bind(cube: CubeSnapshot, query: Query) -> _Binding:
+    """The level, variables and time steps a query's selection picks in a cube version."""
+    sel = query.selection
     levels = tuple(int(v) for v in cube.levels)
     if sel.level is None:
         level = levels[-1]
@@ -158,7 +180,7 @@ def resolve(catalog: Catalog, cube_id: str, query: Query) -> Resolved:
     else:
         t0, t1 = select_times(sel.time, np.asarray(cube.times))
     t0, t1 = analysis_steps(sel, np.asarray(cube.times), t0, t1)  # steps the analysis reads
-    return Resolved(cube_id, cube, cube.version, level, variables, t0, t1, query)
+    return level, variables, t0, t1
 
 
 def _zone_level(zone: int, levels: tuple[int, ...]) -> int:
@@ -293,7 +315,9 @@ def _locate(
     boxes = _boxes(resolved, level)
     nsteps = resolved.t1 - resolved.t0
     if isinstance(q, PointQuery):
-        if boxes is not None and not covered(boxes, q.lat, q.lon):
+        if boxes is not None and not any(
+            w <= q.lon <= e and s <= q.lat <= n for w, s, e, n in boxes
+        ):
             raise _outside(resolved)
         return np.atleast_1d(grid.point_to_zone(q.lat, q.lon, level)).astype(np.uint64), {}
     if isinstance(q, DiskQuery):
@@ -416,12 +440,11 @@ def make_plan(resolved: Resolved, limits: Limits) -> Plan:
     reads: dict[str, ReadPlan] = {}
     halo_chunks: list[str] = []
     if steps and read_zones.size:
-        times = resolved.times
-        start, end = times[0], times[-1]
+        span = slice(resolved.t0, resolved.t1)
         for var in resolved.variables:
-            reads[var] = resolved.cube.plan(var, read_zones, start, end)
+            reads[var] = resolved.cube.plan(var, read_zones, steps=span)
             if analysis is not None and analysis.windows is not None:
-                own = set(resolved.cube.plan(var, targets, start, end).keys)
+                own = set(resolved.cube.plan(var, targets, steps=span).keys)
                 halo_chunks += [key for key in reads[var].keys if key not in own]
     total = sum(r.max_bytes for r in reads.values())
     _check("bytes read per request", total, limits.max_read_bytes)

@@ -8,6 +8,8 @@ selected.
 
 from __future__ import annotations
 
+import functools
+
 from dataclasses import dataclass
 
 import numpy as np
@@ -136,5 +138,17 @@ def format_time(times: np.ndarray) -> list[str]:
     >>> format_time(np.array(["2024-01-01T06:00"], dtype="datetime64[s]"))
     ['2024-01-01T06:00:00Z']
     """
-    text = np.datetime_as_string(np.asarray(times).astype("datetime64[s]"), unit="s")
+    seconds = np.asarray(times).astype("datetime64[s]")
+    if seconds.size <= _FEW:  # a point's answer: the text of each instant made once
+        return [_instant_text(int(t)) for t in seconds.reshape(-1).astype(np.int64).tolist()]
+    text = np.datetime_as_string(seconds, unit="s")
     return [t + "Z" for t in text.tolist()]
+
+
+_FEW = 8
+
+
+@functools.lru_cache(maxsize=4096)
+def _instant_text(seconds: int) -> str:
+    """RFC 3339 UTC text of seconds since 1970."""
+    return str(np.datetime_as_string(np.datetime64(seconds, "s"), unit="s")) + "Z"
