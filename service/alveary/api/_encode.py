@@ -18,6 +18,8 @@ Arrow keeps the stored type (float32 stays float32; packed and float64 are float
 
 from __future__ import annotations
 
+import functools
+
 import io
 import math
 from collections.abc import Iterator
@@ -264,12 +266,39 @@ def _geojson_rows(result: ZoneResult, sel: slice) -> bytes:
 
 
 def _zone_json_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:
-    head = _header(result)
-    head["kind"] = result.kind
-    yield orjson.dumps(head, option=_JSON_OPTS)[:-1] + b',"zones":['
+    yield _zone_json_head(result)
     for k, sel in enumerate(_blocks(result, block_rows)):
         yield _join(_json_rows(result, sel), k == 0)
     yield b"]}"
+
+
+def _zone_json_head(result: ZoneResult) -> bytes:
+    """The JSON answer up to its zones. A plain answer's head depends on the cube
+    version, level, variables and time steps alone: made once for each of those."""
+    note = getattr(result, "note", None)
+    if result.axis is None and not result.analysis and not note and result.times.size <= 64:
+        variables = tuple((v.name, v.units, v.long_name) for v in result.variables.values())
+        times = np.asarray(result.times).astype("datetime64[s]").tobytes()
+        return _plain_head(result.cube, result.version, result.level, variables, result.kind, times)
+    head = _header(result)
+    head["kind"] = result.kind
+    return orjson.dumps(head, option=_JSON_OPTS)[:-1] + b',"zones":['
+
+
+@functools.lru_cache(maxsize=1024)
+def _plain_head(
+    cube: str,
+    version: str,
+    level: int,
+    variables: tuple[tuple[str, str, str], ...],
+    kind: str,
+    times: bytes,
+) -> bytes:
+    head: dict[str, Any] = {"cube": cube, "version": version, "level": level}
+    head["variables"] = {name: {"units": u, "long_name": ln} for name, u, ln in variables}
+    head.update(time_axis_json(np.frombuffer(times, dtype="datetime64[s]"), None))
+    head["kind"] = kind
+    return orjson.dumps(head, option=_JSON_OPTS)[:-1] + b',"zones":['
 
 
 def _zone_geojson_blocks(result: ZoneResult, block_rows: int) -> Iterator[bytes]:

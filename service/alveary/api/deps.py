@@ -6,6 +6,8 @@ and an example, so every operation documents it the same way.
 
 from __future__ import annotations
 
+import functools
+
 import re
 from collections.abc import Awaitable, Callable
 from typing import Annotated, Any, Literal
@@ -294,6 +296,7 @@ def read_datetime(text: str | None) -> Any:
         raise
 
 
+@functools.lru_cache(maxsize=1024)  # a Selection is immutable; refusals are not kept
 def make_selection(
     level: int | None,
     vars_: str | None,
