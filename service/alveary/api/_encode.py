@@ -19,7 +19,6 @@ Arrow keeps the stored type (float32 stays float32; packed and float64 are float
 from __future__ import annotations
 
 import functools
-
 import io
 import math
 from collections.abc import Iterator

@@ -7,7 +7,6 @@ and an example, so every operation documents it the same way.
 from __future__ import annotations
 
 import functools
-
 import re
 from collections.abc import Awaitable, Callable
 from typing import Annotated, Any, Literal

@@ -150,6 +150,7 @@ def plan_cell(
     ('sm/6/apex/c/3/0',)
     """
     t0, t1 = int(time.start), int(time.stop)
+    chunk: tuple[int, ...]
     if region < STRIPS:
         rows, cols = int(layout.chunks.rows), int(layout.chunks.cols)
         (rb, di), (cb, dj) = divmod(i, rows), divmod(j, cols)

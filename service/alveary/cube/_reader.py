@@ -299,10 +299,11 @@ class CubeVersion(_Described):
         tsel = self.time_indices(start, end) if steps is None else steps
         one = grid.zone_fields(zones)
         if one is not None and one[0] in self._layouts:  # a point's read: no arrays
-            level, region, i, j = one
-            prefix = f"{variable}/{level}"
-            layout = self._layouts[level]
-            return plan_cell(layout, prefix, region, i, j, tsel, info.itemsize, variable)
+            lv, reg, row, col = one
+            layout = self._layouts[lv]
+            return plan_cell(
+                layout, f"{variable}/{lv}", reg, row, col, tsel, info.itemsize, variable
+            )
         ids = np.atleast_1d(np.asarray(zones)).ravel()
         if ids.size and ids.dtype.kind not in "ui":
             raise GridError("zones", ids.dtype.name, "integer zone ids")
@@ -352,11 +353,12 @@ class CubeVersion(_Described):
         if len(chunks) == 1 and plan.nzones == 1 and plan.reads[0].out_time.start == 0:
             cr = plan.reads[0]  # one zone, one chunk: its values are the answer
             if cr.out_time.stop == plan.shape[0]:
-                values = info.decode(chunks[0][(cr.in_time, *cr.cells)])
+                where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+                values = info.decode(chunks[0][where])
                 return values.astype(info.value_dtype, copy=False).reshape(plan.shape)
         out = np.full(plan.shape, np.nan, dtype=info.value_dtype)
         for cr, data in zip(plan.reads, chunks, strict=True):
-            where: tuple[Any, ...] = (cr.in_time, *cr.cells)
+            where = (cr.in_time, *cr.cells)
             out[cr.out_time, cr.columns] = info.decode(data[where])
         return out
 

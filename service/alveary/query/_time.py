@@ -9,7 +9,6 @@ selected.
 from __future__ import annotations
 
 import functools
-
 from dataclasses import dataclass
 
 import numpy as np
