@@ -41,7 +41,7 @@ def _wgs84_mean_sin2():
 
 
 def test_reference_values():
-    # 1/3 on a sphere (calculus); 0.33453 on WGS84 as the issue states (rounded)
+    # 1/3 on a sphere (calculus); 0.33453 on WGS84 (the design figure, rounded)
     assert abs(_wgs84_mean_sin2() - 0.33453) < 5e-6
     assert R_Q == pytest.approx(6371007.1809, abs=1e-3)  # published authalic radius
 

@@ -106,7 +106,7 @@ def test_all_zones_refuses_big_levels():
 
 
 def test_zone_area_is_the_wgs84_area_shared_out():
-    # issue: WGS84 surface area 510 065 621.724 km² / (10 4^r) is the hexagon area
+    # design: WGS84 surface area 510 065 621.724 km² / (10 4^r) is the hexagon area
     for level in range(grid.MAX_LEVEL + 1):
         assert grid.zone_area(level) == pytest.approx(WGS84_AREA_M2 / (10 * 4**level), rel=1e-12)
 
@@ -152,7 +152,7 @@ def test_geodesic_boundaries_tile_the_ellipsoid(level):
 
 
 def test_geodesic_area_of_random_zones_levels_8_to_16():
-    # issue: the geodesic area of zone boundaries matches zone_area to 0.1% at levels 8-16
+    # goal: the geodesic area of zone boundaries matches zone_area to 0.1% at levels 8-16
     rng = np.random.default_rng(7)
     for level in range(8, 17):
         lat = np.degrees(np.arcsin(rng.uniform(-1, 1, 60)))

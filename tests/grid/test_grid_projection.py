@@ -32,7 +32,7 @@ from alveary import grid
 from alveary.grid import _authalic, _snyder
 from support.samples import WGS84_AREA_M2, icosahedron_vertices
 
-R_PROJ = 6371007.18091875  # the issue: +R for PROJ's isea, the WGS84 authalic radius
+R_PROJ = 6371007.18091875  # +R for PROJ's isea, the WGS84 authalic radius
 N_POINTS = 100_000
 EDGE_MARGIN = 2e-5  # rad; PROJ's own face test has a tolerance of about 5e-6 rad
 MM = 1e-3
@@ -132,7 +132,7 @@ def random_unit(rng, n):
 
 
 def test_authalic_radius_is_wgs84s():
-    # The sphere with the WGS84 ellipsoid's area (issue: 510 065 621.724 km²) and the
+    # The sphere with the WGS84 ellipsoid's area (510 065 621.724 km²) and the
     # textbook formula R_q = a sqrt(q_p / 2) (Snyder 1987, eq. 3-13; from memory).
     assert _snyder.R_AUTHALIC == pytest.approx(math.sqrt(WGS84_AREA_M2 / (4 * math.pi)), abs=1e-3)
     a, f = 6378137.0, 1 / 298.257223563  # WGS84 defining constants, common practice

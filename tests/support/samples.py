@@ -16,7 +16,7 @@ import numpy as np
 NORTH_APEX = 5
 SOUTH_APEX = 6
 
-#: WGS84 ellipsoid surface area in m² (the issue; also what pyproj.Geod("WGS84") gives).
+#: WGS84 ellipsoid surface area in m² (the design figure; also what pyproj.Geod("WGS84") gives).
 WGS84_AREA_M2 = 510_065_621.724e6
 
 

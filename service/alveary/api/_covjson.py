@@ -298,9 +298,8 @@ def point_series(result: ZoneResult, *, time_axis: np.ndarray | None = None) -> 
 def _zone_place(zone: int) -> tuple[float, float, str]:
     """A zone's centre (lon, lat) and text id, for point answers (a field app asks for the
     same few zones again and again)."""
-    ids = np.array([zone], dtype=np.uint64)
-    lat, lon = grid.zone_to_point(ids)
-    return float(lon[0]), float(lat[0]), str(grid.zone_to_text(ids)[0])
+    lat, lon = grid.zone_to_point(zone)
+    return float(lon), float(lat), str(grid.zone_to_text(zone))
 
 
 @functools.lru_cache(maxsize=256)
