@@ -18,7 +18,6 @@ from html.parser import HTMLParser
 import httpx
 import mapbox_vector_tile
 import numpy as np
-import pyproj
 import pytest
 import zarr
 from PIL import Image
@@ -27,11 +26,9 @@ from alveary import grid
 from alveary.api._colours import colour_scale
 from support import analytic, mapcube
 from support.server import ServiceProcess
+from support.tiles import chunk_gets, decode, proj_pixel_centres
 
 pytestmark = pytest.mark.server
-
-HALF = math.pi * 6378137.0  # EPSG:3857's square spans ±πR
-TO_LONLAT = pyproj.Transformer.from_crs("EPSG:3857", "EPSG:4326", always_xy=True)
 
 
 @pytest.fixture(scope="module")
@@ -60,21 +57,6 @@ def maps(analytic_store, patch_store):
             yield client
     finally:
         proc.stop()
-
-
-def proj_pixel_centres(z, y, x, size=256):
-    """Pixel-centre lat/lon from EPSG:3857 metres through PROJ."""
-    step = 2.0 * HALF / (size * 2**z)
-    idx = np.arange(size) + 0.5
-    mx, my = np.meshgrid(-HALF + (x * size + idx) * step, HALF - (y * size + idx) * step)
-    lon, lat = TO_LONLAT.transform(mx, my)
-    return np.asarray(lat), np.asarray(lon)
-
-
-def decode(body):
-    image = Image.open(io.BytesIO(body))  # Pillow decodes the PNG
-    assert image.size == (256, 256)
-    return np.asarray(image.convert("RGBA")).astype(int)
 
 
 def positions(values, lo, hi):
@@ -181,14 +163,6 @@ def test_etag_cache_control_and_not_modified(maps):
     other = maps.get(path, params={"vars": "temp", "datetime": str(analytic.TIMES[0]) + "Z"})
     assert other.headers["etag"] != etag
     assert not np.array_equal(decode(other.content), decode(first.content))
-
-
-def chunk_gets(s3_server, mark, url):
-    return [
-        r
-        for r in s3_server.requests(since=mark, bucket=url)
-        if r.method == "GET" and "/versions/" in r.path and "/c/" in r.path
-    ]
 
 
 def test_chunk_gets_equal_the_tile_cover(maps, s3_server, patch_store):

@@ -13,27 +13,21 @@ counted in the S3 server's own log against zarr's chunk grid.
 
 from __future__ import annotations
 
-import io
-import math
-
 import httpx
 import mapbox_vector_tile
 import numpy as np
 import pandas as pd
-import pyproj
 import pytest
 import zarr
-from PIL import Image
 
 from alveary import grid
 from alveary.api._colours import colour_scale
 from support import analytic, mapcube
 from support.server import ServiceProcess
+from support.tiles import chunk_gets, decode, proj_pixel_centres
 
 pytestmark = pytest.mark.server
 
-HALF = math.pi * 6378137.0  # EPSG:3857's square spans ±πR
-TO_LONLAT = pyproj.Transformer.from_crs("EPSG:3857", "EPSG:4326", always_xy=True)
 MAX_ZONES = 600  # a level-7 tile at zoom 5 fits, with a halo of 6 rings it does not
 
 
@@ -64,21 +58,6 @@ def maps(analytic_store, stores):
             yield client
     finally:
         proc.stop()
-
-
-def proj_pixel_centres(z, y, x, size=256):
-    """Pixel-centre lat/lon from EPSG:3857 metres through PROJ."""
-    step = 2.0 * HALF / (size * 2**z)
-    idx = np.arange(size) + 0.5
-    mx, my = np.meshgrid(-HALF + (x * size + idx) * step, HALF - (y * size + idx) * step)
-    lon, lat = TO_LONLAT.transform(mx, my)
-    return np.asarray(lat), np.asarray(lon)
-
-
-def decode(body):
-    image = Image.open(io.BytesIO(body))  # Pillow decodes the PNG
-    assert image.size == (256, 256)
-    return np.asarray(image.convert("RGBA")).astype(int)
 
 
 def colour_values(px, scale, lo, hi):
@@ -156,14 +135,6 @@ def test_focal_mean_tile_pixels_are_the_disk_mean(maps, var, tile, lo, hi):
         plain = maps.get(tile_path("analytic", z, y, x), params=params)
         plain_px = decode(plain.content)
         assert (plain_px[rows, cols][filled][:, 3] == 0).all()
-
-
-def chunk_gets(s3_server, mark, url):
-    return [
-        r
-        for r in s3_server.requests(since=mark, bucket=url)
-        if r.method == "GET" and "/versions/" in r.path and "/c/" in r.path
-    ]
 
 
 def chunk_cover(root, level, zones, step):
