@@ -26,7 +26,7 @@ from alveary import grid
 from alveary.api._colours import colour_scale
 from support import analytic, mapcube
 from support.server import ServiceProcess
-from support.tiles import chunk_gets, decode, proj_pixel_centres
+from support.tiles import chunk_gets, decode, level_range, proj_pixel_centres
 
 pytestmark = pytest.mark.server
 
@@ -63,15 +63,6 @@ def positions(values, lo, hi):
     """Entry 0..255 of values on a scale over [lo, hi] (written here from the docs)."""
     t = np.clip((np.asarray(values, float) - lo) / (hi - lo), 0.0, 1.0)
     return np.rint(t * 255).astype(int)
-
-
-def level_range(var, level):
-    """min, max of the analytic cube's variable over every zone and step at a level."""
-    lat, lon = grid.zone_to_point(grid.all_zones(level))
-    f = analytic.field if var == "temp" else analytic.rain
-    days = np.arange(analytic.NTIMES, dtype=float)[:, None]
-    v = f(lat[None, :], lon[None, :], days)
-    return float(np.nanmin(v)), float(np.nanmax(v))
 
 
 # tiles next to the antimeridian (x = 0 and x = 2^z - 1), at the top row (near the pole,

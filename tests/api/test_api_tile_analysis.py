@@ -13,6 +13,9 @@ counted in the S3 server's own log against zarr's chunk grid.
 
 from __future__ import annotations
 
+import re
+import xml.etree.ElementTree as ET
+
 import httpx
 import mapbox_vector_tile
 import numpy as np
@@ -24,7 +27,7 @@ from alveary import grid
 from alveary.api._colours import colour_scale
 from support import analytic, mapcube
 from support.server import ServiceProcess
-from support.tiles import chunk_gets, decode, proj_pixel_centres
+from support.tiles import chunk_gets, decode, level_range, proj_pixel_centres
 
 pytestmark = pytest.mark.server
 
@@ -363,3 +366,33 @@ def test_climatology_and_anomaly_tiles_match_pandas(maps):
     has = ~np.isnan(expected)
     assert (np.isnan(got) == ~has).mean() > 0.99
     assert (np.abs(got[has] - expected[has]) <= width / 255 + 1e-9).mean() > 0.99
+
+
+def test_the_legend_takes_the_tiles_analysis_and_range(maps):
+    # The legend's range is the one the tiles draw with for the same parameters: a
+    # count of a 2-disk spans [0, 19] (a full hexagonal disk: 3k(k+1) + 1 zones), a sum of
+    # a 1-disk seven times the level's range computed from the analytic field, and
+    # a gradient needs range (as for a tile). xml.etree parses the SVG.
+    def labels(params):
+        r = maps.get("/collections/analytic/legend", params={"vars": "temp", "f": "svg", **params})
+        assert r.status_code == 200, r.text
+        root = ET.fromstring(r.content)
+        return " ".join(t.text or "" for t in root.iter("{http://www.w3.org/2000/svg}text")), r
+
+    def shows(text, value, places):  # a label equal to value at the printed precision
+        numbers = [float(n) for n in re.findall(r"-?\d+(?:\.\d+)?", text)]
+        return any(abs(n - value) <= 0.5 * 10.0**-places + 1e-9 for n in numbers)
+
+    text, count = labels({"focal": "count", "focal_k": 2})
+    assert shows(text, 0.0, 1) and shows(text, 19.0, 1)
+    assert "count over 2 rings" in text and "(1)" in text
+    lo, hi = level_range("temp", 7)  # the default range: the finest level's
+    text, total = labels({"focal": "sum", "focal_k": 1})
+    assert shows(text, 7 * lo, 0) and shows(text, 7 * hi, 0), (text, 7 * lo, 7 * hi)
+    assert count.headers["etag"] != total.headers["etag"]
+    plain, _ = labels({})
+    assert f"{lo:.1f}" in plain and "rings" not in plain
+    r = maps.get("/collections/analytic/legend", params={"vars": "temp", "focal": "gradient"})
+    assert r.status_code == 422 and "range" in r.text
+    text, _ = labels({"focal": "gradient", "range": "0,1e-4"})
+    assert "K m-1" in text

@@ -10,7 +10,10 @@ import numpy as np
 import pyproj
 from PIL import Image
 
-__all__ = ["HALF", "chunk_gets", "decode", "proj_pixel_centres"]
+from alveary import grid
+from support import analytic
+
+__all__ = ["HALF", "chunk_gets", "decode", "level_range", "proj_pixel_centres"]
 
 HALF = math.pi * 6378137.0  # EPSG:3857's square spans ±πR
 _TO_LONLAT = pyproj.Transformer.from_crs("EPSG:3857", "EPSG:4326", always_xy=True)
@@ -39,3 +42,13 @@ def chunk_gets(s3_server, mark, url):
         for r in s3_server.requests(since=mark, bucket=url)
         if r.method == "GET" and "/versions/" in r.path and "/c/" in r.path
     ]
+
+
+def level_range(var, level):
+    """min, max of the analytic cube's variable over every zone and step at a level,
+    from the field itself (what a cube build records as the level's value range)."""
+    lat, lon = grid.zone_to_point(grid.all_zones(level))
+    f = analytic.field if var == "temp" else analytic.rain
+    days = np.arange(analytic.NTIMES, dtype=float)[:, None]
+    v = f(lat[None, :], lon[None, :], days)
+    return float(np.nanmin(v)), float(np.nanmax(v))

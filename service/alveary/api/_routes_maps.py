@@ -56,6 +56,7 @@ from alveary.query import (
     CubeSnapshot,
     ResolvedTile,
     Selection,
+    TileAnalysis,
     TilePlan,
     analysed_range,
     parse_vars,
@@ -65,6 +66,7 @@ from alveary.query import (
     read_tile,
     read_zone_values,
     resolve_tile,
+    resolve_tile_analysis,
     tile_intersects,
     tile_zone_candidates,
     value_range,
@@ -194,12 +196,27 @@ def _tile_selection(
 async def _tile_range(
     service: Service, cube_id: str, snap: CubeSnapshot, resolved: ResolvedTile, given: str | None
 ) -> tuple[float, float]:
-    """The colour range: ``range``, else the stored range carried through the analysis."""
+    """The colour range of a tile (see :func:`_shown_range`)."""
+    return await _shown_range(
+        service, cube_id, snap, resolved.variable, resolved.level, resolved.analysis, given
+    )
+
+
+async def _shown_range(
+    service: Service,
+    cube_id: str,
+    snap: CubeSnapshot,
+    variable: str,
+    level: int,
+    a: TileAnalysis | None,
+    given: str | None,
+) -> tuple[float, float]:
+    """The colour range: ``range``, else the stored range carried through the analysis
+    (the tiles and the legend take it from the same parameters)."""
     found = parse_range(given)
     if found is not None:
         return found
-    lo, hi = await _range(service, cube_id, snap, resolved.variable, resolved.level)
-    a = resolved.analysis
+    lo, hi = await _range(service, cube_id, snap, variable, level)
     if a is None:
         return lo, hi
     sel = a.selection
@@ -497,10 +514,19 @@ async def legend(
     colormap: ColormapParam = None,
     range_: RangeParam = None,
     level: LevelParam = None,
+    time: DatetimeParam = None,
+    focal: FocalParam = None,
+    focal_k: FocalKParam = None,
+    kernel: KernelParam = None,
+    every: EveryParam = None,
+    agg: AggParam = None,
+    climatology: ClimatologyParam = None,
+    anomaly: AnomalyParam = None,
     f: LegendFormatParam = None,
     accept: AcceptHeader = None,
 ) -> Response:
     service = _service(request)
+    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = parse_vars(vars_)
     variable = names[0] if names else next(iter(snap.variables))
@@ -513,15 +539,64 @@ async def legend(
     fmt = _legend_format(f, accept)
     scale = colour_scale(colormap)
     chosen = levels[-1] if level is None else int(level)
-    lo, hi = parse_range(range_) or await _range(service, cube, snap, variable, chosen)
+    shown = resolve_tile_analysis(np.asarray(snap.times), sel.time, sel.focal, sel.timeagg)
+    lo, hi = await _shown_range(service, cube, snap, variable, chosen, shown, range_)
     info = snap.variables[variable]
     title = info.long_name or variable
-    etag = etag_for(f"legend|{cube}|{snap.version}|{variable}|{scale.name}|{lo!r},{hi!r}", fmt)
+    if shown is not None:
+        title = f"{title}, {_analysis_words(shown)}"
+    units = _shown_units(info.units, shown)
+    analysis = "" if shown is None else shown.text
+    key = f"legend|{cube}|{snap.version}|{variable}|{scale.name}|{lo!r},{hi!r}|{analysis}"
+    etag = etag_for(key, fmt)
     if fmt == "svg":
-        body, media = legend_svg(scale, lo, hi, title=title, units=info.units), SVG_MEDIA_TYPE
+        body, media = legend_svg(scale, lo, hi, title=title, units=units), SVG_MEDIA_TYPE
     else:
-        body, media = legend_png(scale, lo, hi, title=title, units=info.units), PNG_MEDIA_TYPE
+        body, media = legend_png(scale, lo, hi, title=title, units=units), PNG_MEDIA_TYPE
     return Response(body, media_type=media, headers=service.headers(etag, cube))
+
+
+def _analysis_words(a: TileAnalysis) -> str:
+    """What an analysed tile shows, in a few words for a legend's title.
+
+    >>> from alveary.query import FocalSpec, Selection
+    >>> from alveary.query._timeagg import parse_time_aggregation
+    >>> sel = Selection(focal=FocalSpec("mean", 2), timeagg=parse_time_aggregation("P1M"))
+    >>> _analysis_words(TileAnalysis(sel, 0, 31, None, 31, "P1M:2024-01-01T00:00:00Z"))
+    'mean over 2 rings, mean per P1M'
+    """
+    sel, words = a.selection, []
+    if sel.focal is not None:
+        rings = "ring" if sel.focal.k == 1 else "rings"
+        words.append(f"{sel.focal.statistic} over {sel.focal.k} {rings}")
+    agg = sel.timeagg
+    if agg is not None and agg.every:
+        words.append(f"{agg.agg} per {agg.every}")
+    by = {"month": "monthly", "dayofyear": "day-of-year"}
+    if agg is not None and agg.climatology:
+        words.append(f"{agg.agg} {by.get(agg.climatology, agg.climatology)} climatology")
+    if agg is not None and agg.anomaly:
+        words.append(f"anomaly from the {by.get(agg.anomaly, agg.anomaly)} mean")
+    return ", ".join(words)
+
+
+def _shown_units(units: str, a: TileAnalysis | None) -> str:
+    """The units of what a tile shows: a count has none, a gradient is per metre.
+
+    >>> from alveary.query import FocalSpec, Selection
+    >>> grad = TileAnalysis(Selection(focal=FocalSpec("gradient", 1)), 0, 1, None, 1, "")
+    >>> _shown_units("K", None), _shown_units("K", grad)
+    ('K', 'K m-1')
+    """
+    focal = None if a is None else a.selection.focal
+    agg = None if a is None else a.selection.timeagg
+    if (focal is not None and focal.statistic == "count") or (
+        agg is not None and agg.agg == "count"
+    ):
+        return "1"
+    if focal is not None and focal.statistic == "gradient":
+        return f"{units} m-1"
+    return units
 
 
 def _legend_format(f: str | None, accept: str | None) -> str:
