@@ -415,3 +415,37 @@ def test_coastlines_are_valid_geojson_lines():
     for line in shape.geoms:
         lon = np.asarray(line.coords)[:, 0]
         assert np.abs(np.diff(lon)).max(initial=0) < 180
+
+
+def test_show_picker_draws_a_neighbourhood_statistic_everywhere(page, served):
+    # "spread (std) over 1 ring": the tiles, the legend and the clicked zone's value ask
+    # for the same focal statistic; the value is judged against numpy's population
+    # standard deviation of the field at the centres of the zone and its six neighbours
+    # (grid.zone_disk). A spread, unlike a mean of a smooth field, is far from the value.
+    open_map(page, served, query=f"?cube={CUBE_ID}&vars=canopy_temp", view="#6/30/10")
+    page.requested.clear()
+    page.select_option("#analysis", "std1")
+    page.wait_for_timeout(300)
+    wait_tiles(page)
+    tiles = [u for u in page.requested if "/map/tiles/WebMercatorQuad/" in u]
+    assert tiles
+    last = parse_qs(urlsplit(tiles[-1]).query)
+    assert last["focal"] == ["std"] and last["focal_k"] == ["1"]
+    legend = page.locator("#legend").get_attribute("src")
+    assert "focal=std" in legend and "focal_k=1" in legend
+    assert "show=std1" in page.url
+    view = view_state(page)
+    sx, sy = 0.5 * view["width"] - 41.0, 0.5 * view["height"] + 17.0
+    page.mouse.click(view["left"] + sx, view["top"] + sy)
+    page.wait_for_selector("#zone[data-zone]", timeout=30_000)
+    page.wait_for_function("document.getElementById('chart').dataset.points !== undefined")
+    panel = page.locator("#zone")
+    lat, lon = float(panel.get_attribute("data-lat")), float(panel.get_attribute("data-lon"))
+    zone = grid.point_to_zone(lat, lon, int(panel.get_attribute("data-level")))
+    disk = grid.zone_disk(zone, 1)
+    clat, clon = grid.zone_to_point(np.asarray(disk, dtype=np.uint64))
+    expected = float(np.std(field("canopy_temp", clat, clon, len(TIMES) - 1)))
+    assert expected > 0.01
+    shown = page.inner_text("#zone-value")
+    assert float(shown.split()[0]) == pytest.approx(expected, rel=6e-4)
+    assert page.get_attribute("#chart", "data-points") == str(len(TIMES))

@@ -10,7 +10,17 @@ const base = new URL(".", document.baseURI).href; // the service root, behind an
 const api = (path, params = {}) => logic.withQuery(new URL(path, base).href, params);
 const $ = (id) => document.getElementById(id);
 
+// What a zone shows: its stored value, or a neighbourhood statistic (the service's focal
+// parameters), the same for the tiles, the legend and the clicked zone's values.
+const ANALYSES = {
+  values: { label: "stored values", params: {} },
+  mean1: { label: "mean with 1 ring of neighbours", params: { focal: "mean", focal_k: 1 } },
+  mean2: { label: "mean with 2 rings of neighbours", params: { focal: "mean", focal_k: 2 } },
+  std1: { label: "spread (std) over 1 ring", params: { focal: "std", focal_k: 1 } },
+};
+
 const state = {
+  analysis: "values",
   cubes: [],
   cube: null, // the /cubes/{cube} answer
   doc: null, // the /collections/{cube}/map/tiles answer
@@ -49,12 +59,17 @@ function variableInfo() {
   return (state.cube && state.cube.variables[state.variable]) || { units: "", long_name: "" };
 }
 
+function analysisParams() {
+  return ANALYSES[state.analysis].params;
+}
+
 function tileParams() {
   const t = times();
   return {
     vars: state.variable,
     datetime: state.step >= 0 ? t[state.step] : null,
     colormap: state.colormap,
+    ...analysisParams(),
   };
 }
 
@@ -67,6 +82,7 @@ function legendUrl() {
   return api(`collections/${encodeURIComponent(state.cube.id)}/legend`, {
     vars: state.variable,
     colormap: state.colormap,
+    ...analysisParams(),
     f: "svg",
   });
 }
@@ -75,6 +91,8 @@ function rememberChoices() {
   const url = new URL(window.location.href);
   const p = tileParams();
   url.searchParams.set("cube", state.cube.id);
+  for (const k of ["focal", "focal_k"]) url.searchParams.delete(k);
+  url.searchParams.set("show", state.analysis);
   for (const [k, v] of Object.entries(p)) if (v) url.searchParams.set(k, v);
   window.history.replaceState(null, "", url.toString());
 }
@@ -89,7 +107,8 @@ function refreshTiles() {
   if (source) source.setTiles([tileTemplate()]);
   const info = variableInfo();
   $("legend").src = legendUrl();
-  $("legend").alt = `legend: ${info.long_name || state.variable}${info.units ? ` (${info.units})` : ""}`;
+  const shown = state.analysis === "values" ? "" : `, ${ANALYSES[state.analysis].label}`;
+  $("legend").alt = `legend: ${info.long_name || state.variable}${shown}${info.units ? ` (${info.units})` : ""}`;
   $("step-label").textContent = times()[state.step] || "";
   rememberChoices();
   if (state.clicked) inspect(state.clicked);
@@ -111,6 +130,11 @@ function fillPickers(query) {
   state.step = logic.stepIndex(t, query.get("datetime"));
   slider.value = state.step;
   slider.disabled = t.length < 2;
+
+  const asel = $("analysis");
+  asel.replaceChildren(...Object.entries(ANALYSES).map(([id, a]) => option(id, a.label)));
+  state.analysis = query.get("show") in ANALYSES ? query.get("show") : "values";
+  asel.value = state.analysis;
 
   const csel = $("colormap");
   const maps = state.doc.colormaps || {};
@@ -209,6 +233,7 @@ async function inspect(lngLat) {
           level,
           vars: state.variable,
           datetime: t.length ? `${t[0]}/${t[t.length - 1]}` : null,
+          ...analysisParams(),
         }),
       ),
     ]);
@@ -226,10 +251,11 @@ async function inspect(lngLat) {
     const value = at >= 0 ? values[at] : null;
     $("zone-value").textContent = logic.formatValue(value, info.units);
     $("zone-step").textContent = t[state.step] || "";
+    const shown = state.analysis === "values" ? "" : ` (${ANALYSES[state.analysis].label})`;
     const drawn = drawSeries($("chart"), seriesTimes, values, {
       units: info.units,
       selected: at,
-      label: `${info.long_name || state.variable} in zone ${zone.zone_text}`,
+      label: `${info.long_name || state.variable}${shown} in zone ${zone.zone_text}`,
     });
     $("chart").dataset.points = String(drawn);
     if (zone.geometry) {
@@ -278,6 +304,10 @@ async function main() {
   $("cube").addEventListener("change", (e) => chooseCube(e.target.value, new URLSearchParams()));
   $("variable").addEventListener("change", (e) => {
     state.variable = e.target.value;
+    refreshTiles();
+  });
+  $("analysis").addEventListener("change", (e) => {
+    state.analysis = e.target.value;
     refreshTiles();
   });
   $("colormap").addEventListener("change", (e) => {
