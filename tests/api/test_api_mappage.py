@@ -449,3 +449,22 @@ def test_show_picker_draws_a_neighbourhood_statistic_everywhere(page, served):
     shown = page.inner_text("#zone-value")
     assert float(shown.split()[0]) == pytest.approx(expected, rel=6e-4)
     assert page.get_attribute("#chart", "data-points") == str(len(TIMES))
+
+
+def test_the_docs_stylesheet_still_styles_third_level_headings(page, served):
+    # The vendored swagger-ui.css writes its third-level heading selectors with a CSS
+    # escape (CSS Syntax 3 §4.3.7: "\33" is the digit 3). Chromium must match them as the
+    # upstream file does: a section heading in #3b4151 and the .h3 utility 4rem high.
+    page.set_content(
+        f'<link rel="stylesheet" href="{served.url}/docs/assets/swagger-ui.css">'
+        '<div class="swagger-ui"><section><h3 id="heading">x</h3></section>'
+        '<div id="box" class="h3">y</div><div id="wide" class="h3-ns">z</div></div>',
+        wait_until="load",
+    )
+    style = page.evaluate(
+        """() => ['heading', 'box', 'wide'].map((id) => {
+             const s = getComputedStyle(document.getElementById(id));
+             return [s.color, s.height]; })"""
+    )
+    assert style[0][0] == "rgb(59, 65, 81)"
+    assert style[1][1] == "64px" and style[2][1] == "64px"

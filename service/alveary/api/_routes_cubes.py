@@ -56,6 +56,7 @@ from alveary.api.deps import (
     ZoneParam,
     known_parameters,
     make_selection,
+    service_selection,
 )
 from alveary.grid import MAX_LEVEL
 from alveary.query import (
@@ -218,19 +219,8 @@ async def query_point(
 ) -> Response:
     # Parameters are flat here (no sub-dependencies): this is the hot path of dashboards.
     service: Service = request.app.state.service
-    sel = make_selection(
-        level,
-        vars_,
-        time,
-        focal=focal,
-        focal_k=focal_k,
-        kernel=kernel,
-        every=every,
-        agg=agg,
-        climatology=climatology,
-        anomaly=anomaly,
-        max_focal_k=service.limits.max_focal_k,
-    )
+    analysis = (focal, focal_k, kernel, every, agg, climatology, anomaly)
+    sel = service_selection(service, level, vars_, time, *analysis)
     fmt = negotiate(f, accept, CUBE_FORMATS)
     query = PointQuery(lat, lon, sel)
     credentials = await service.credentials(request.scope)

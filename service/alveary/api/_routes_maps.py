@@ -50,12 +50,11 @@ from alveary.api.deps import (
     LevelParam,
     VarsParam,
     known_parameters,
-    make_selection,
+    service_selection,
 )
 from alveary.query import (
     CubeSnapshot,
     ResolvedTile,
-    Selection,
     TileAnalysis,
     TilePlan,
     analysed_range,
@@ -164,33 +163,6 @@ async def _range(
         if snap.value_range(variable, level) is None:
             _scanned[key] = found
     return found
-
-
-def _tile_selection(
-    service: Service,
-    time: str | None,
-    focal: str | None,
-    focal_k: str | None,
-    kernel: str | None,
-    every: str | None,
-    agg: str | None,
-    climatology: str | None,
-    anomaly: str | None,
-) -> Selection:
-    """``datetime`` and the analysis of a tile, checked as for every cube query."""
-    return make_selection(
-        None,
-        None,
-        time,
-        focal=focal,
-        focal_k=focal_k,
-        kernel=kernel,
-        every=every,
-        agg=agg,
-        climatology=climatology,
-        anomaly=anomaly,
-        max_focal_k=service.limits.max_focal_k,
-    )
 
 
 async def _tile_range(
@@ -328,7 +300,9 @@ async def map_tile(
 ) -> Response:
     service = _service(request)
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
-    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
+    sel = service_selection(
+        service, None, None, time, focal, focal_k, kernel, every, agg, climatology, anomaly
+    )
     resolved = resolve_tile(
         cube,
         snap,
@@ -443,7 +417,9 @@ async def vector_tile(
     service = _service(request)
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = _vector_variables(snap, parse_vars(vars_))
-    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
+    sel = service_selection(
+        service, None, None, time, focal, focal_k, kernel, every, agg, climatology, anomaly
+    )
     resolved = resolve_tile(
         cube,
         snap,
@@ -526,7 +502,9 @@ async def legend(
     accept: AcceptHeader = None,
 ) -> Response:
     service = _service(request)
-    sel = _tile_selection(service, time, focal, focal_k, kernel, every, agg, climatology, anomaly)
+    sel = service_selection(
+        service, None, None, time, focal, focal_k, kernel, every, agg, climatology, anomaly
+    )
     snap = service.cube_for(cube, await service.credentials(request.scope)).snapshot()
     names = parse_vars(vars_)
     variable = names[0] if names else next(iter(snap.variables))

@@ -62,6 +62,8 @@ __all__ = [
     "ZonePath",
     "declared_query_parameters",
     "known_parameters",
+    "make_selection",
+    "service_selection",
 ]
 
 
@@ -320,6 +322,35 @@ def make_selection(
     )
 
 
+def service_selection(
+    service: Service,
+    level: int | None,
+    vars_: str | None,
+    time: str | None,
+    focal: str | None = None,
+    focal_k: str | None = None,
+    kernel: str | None = None,
+    every: str | None = None,
+    agg: str | None = None,
+    climatology: str | None = None,
+    anomaly: str | None = None,
+) -> Selection:
+    """:func:`make_selection` within the service's limits (the routes' one way in)."""
+    return make_selection(
+        level,
+        vars_,
+        time,
+        focal=focal,
+        focal_k=focal_k,
+        kernel=kernel,
+        every=every,
+        agg=agg,
+        climatology=climatology,
+        anomaly=anomaly,
+        max_focal_k=service.limits.max_focal_k,
+    )
+
+
 async def selection(
     request: Request,
     level: LevelParam = None,
@@ -335,19 +366,8 @@ async def selection(
 ) -> Selection:
     """Level, variables, time and analysis of a cube query."""
     service: Service = request.app.state.service
-    return make_selection(
-        level,
-        vars_,
-        time,
-        focal=focal,
-        focal_k=focal_k,
-        kernel=kernel,
-        every=every,
-        agg=agg,
-        climatology=climatology,
-        anomaly=anomaly,
-        max_focal_k=service.limits.max_focal_k,
-    )
+    analysis = (focal, focal_k, kernel, every, agg, climatology, anomaly)
+    return service_selection(service, level, vars_, time, *analysis)
 
 
 SelectionDep = Annotated[Selection, Depends(selection)]
